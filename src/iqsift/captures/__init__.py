@@ -1,0 +1,30 @@
+"""Capture files: readers (SigMF, raw interleaved, WAV/FLAC), writers, and statistics."""
+
+from .atomic import OutputSet, check_output_path
+from .audio import AudioWriter
+from .capture import DEFAULT_BLOCK_SIZE, Annotation, Capture, SampleRange, Segment
+from .datatypes import ALL_DATATYPES, DataType, parse_datatype
+from .open import capture_kind, open_capture
+from .sigmf import SIGMF_VERSION, SigMFWriter, sigmf_paths
+from .stats import CaptureStats, StatsAccumulator
+
+__all__ = [
+    "ALL_DATATYPES",
+    "Annotation",
+    "AudioWriter",
+    "Capture",
+    "CaptureStats",
+    "DEFAULT_BLOCK_SIZE",
+    "DataType",
+    "OutputSet",
+    "SIGMF_VERSION",
+    "SampleRange",
+    "Segment",
+    "SigMFWriter",
+    "StatsAccumulator",
+    "capture_kind",
+    "check_output_path",
+    "open_capture",
+    "parse_datatype",
+    "sigmf_paths",
+]

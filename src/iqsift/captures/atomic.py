@@ -1,0 +1,112 @@
+"""Atomic output files: write to a temporary file, rename into place when complete.
+
+A command that fails halfway leaves no partial output and never clobbers an
+existing file: every output is first written to a hidden temporary file in the
+target folder (same file system, so :func:`os.replace` is atomic) and renamed
+only when the whole job has succeeded. Existing files are refused unless
+``force`` is given, and the check happens for all outputs before any work.
+"""
+
+from __future__ import annotations
+
+import os
+import tempfile
+from pathlib import Path
+
+from ..errors import OutputExistsError, ParameterError
+
+__all__ = ["OutputSet", "check_output_path"]
+
+
+def check_output_path(path: str | os.PathLike, force: bool = False) -> Path:
+    """Validate an output path before any work starts.
+
+    Raises
+    ------
+    OutputExistsError
+        If the file exists and ``force`` is false.
+    ParameterError
+        If the path is a directory or its folder does not exist.
+    """
+    path = Path(path)
+    if path.is_dir():
+        raise ParameterError(f"{path}: is a directory; give a file name for the output")
+    parent = path.parent if str(path.parent) else Path(".")
+    if not parent.is_dir():
+        raise ParameterError(f"{path}: the folder {parent} does not exist")
+    if path.exists() and not force:
+        raise OutputExistsError(f"{path}: exists; pass --force to overwrite it")
+    return path
+
+
+class OutputSet:
+    """A group of output files committed together.
+
+    Use as a context manager: :meth:`reserve` each output (checks happen
+    immediately), write to the temporary path it returns, and on a clean exit
+    every temporary file is renamed into place. On an exception all temporary
+    files are removed and nothing is renamed.
+
+    Parameters
+    ----------
+    force : bool
+        Overwrite existing files.
+
+    Examples
+    --------
+    >>> with OutputSet(force=False) as outputs:           # doctest: +SKIP
+    ...     tmp = outputs.reserve("audio.wav")
+    ...     write_audio(tmp)
+    """
+
+    def __init__(self, force: bool = False) -> None:
+        self.force = force
+        self._pending: list[tuple[Path, Path]] = []
+        self._committed: list[Path] = []
+
+    def reserve(self, path: str | os.PathLike) -> Path:
+        """Check ``path`` and return a temporary path in the same folder to write to."""
+        final = check_output_path(path, self.force)
+        if any(final.resolve() == f.resolve() for f, _ in self._pending):
+            raise ParameterError(f"{final}: named twice as an output")
+        handle, tmp = tempfile.mkstemp(prefix=f".{final.name}.", suffix=".part", dir=final.parent or ".")
+        os.close(handle)
+        temp = Path(tmp)
+        self._pending.append((final, temp))
+        return temp
+
+    @property
+    def paths(self) -> list[Path]:
+        """Final paths reserved so far (or committed)."""
+        return [f for f, _ in self._pending] or list(self._committed)
+
+    def commit(self) -> list[Path]:
+        """Rename every temporary file into place; returns the final paths."""
+        done = []
+        for final, temp in self._pending:
+            if final.exists() and not self.force:
+                self.abort()
+                raise OutputExistsError(f"{final}: appeared while writing; pass --force to overwrite it")
+            os.replace(temp, final)
+            done.append(final)
+        self._pending = []
+        self._committed = done
+        return done
+
+    def abort(self) -> None:
+        """Remove every temporary file; nothing is renamed."""
+        for _, temp in self._pending:
+            try:
+                temp.unlink()
+            except FileNotFoundError:
+                pass
+        self._pending = []
+
+    def __enter__(self) -> "OutputSet":
+        return self
+
+    def __exit__(self, exc_type, exc, tb) -> None:
+        if exc_type is None:
+            self.commit()
+        else:
+            self.abort()

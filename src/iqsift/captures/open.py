@@ -1,0 +1,88 @@
+"""Pick the reader for a capture file from its name and open it."""
+
+from __future__ import annotations
+
+import os
+from pathlib import Path
+
+from ..errors import CaptureError, ParameterError
+from ..units import parse_frequency, parse_positive_hz
+from .audio import AUDIO_FORMATS, read_audio_capture
+from .capture import Capture
+from .raw import read_raw
+from .sigmf import read_sigmf, read_sigmf_archive
+
+__all__ = ["open_capture", "capture_kind"]
+
+
+def capture_kind(path: str | os.PathLike) -> str:
+    """``"sigmf"``, ``"sigmf-archive"``, ``"audio"`` or ``"raw"``, from the file name."""
+    name = Path(path).name.lower()
+    if name.endswith((".sigmf-meta", ".sigmf-data")):
+        return "sigmf"
+    if name.endswith(".sigmf"):
+        return "sigmf-archive"
+    if Path(name).suffix in AUDIO_FORMATS:
+        return "audio"
+    return "raw"
+
+
+def open_capture(
+    path: str | os.PathLike,
+    *,
+    format: str | None = None,
+    rate: float | str | None = None,
+    center: float | str | None = None,
+    strict: bool = False,
+) -> Capture:
+    """Open a capture: SigMF, SigMF archive, WAV/FLAC, or raw interleaved samples.
+
+    Parameters
+    ----------
+    path : path
+        The capture. SigMF is recognised by ``.sigmf-meta``/``.sigmf-data``
+        (either file of the pair), an archive by ``.sigmf``, audio by ``.wav``
+        or ``.flac``; anything else is raw.
+    format : str, optional
+        SigMF datatype of a raw file (``cf32_le``, ``ci16_le``, ``cu8`` ...).
+    rate : float or str, optional
+        Sample rate (samples/s, SI suffix allowed). Required for raw files;
+        overrides the recorded rate otherwise (with a warning).
+    center : float or str, optional
+        Centre frequency (Hz); overrides the recorded one.
+    strict : bool
+        Refuse a data size that is not a whole number of samples.
+
+    Raises
+    ------
+    CaptureError
+        When the file is missing, is a directory, or cannot be read as described.
+    ParameterError
+        For invalid options.
+    """
+    path = Path(path)
+    rate_hz = None if rate is None else parse_positive_hz(rate, "--rate")
+    center_hz = None if center is None else parse_frequency(center, "--center")
+    kind = capture_kind(path)
+    if kind == "sigmf":
+        if format is not None:
+            raise ParameterError(f"{path}: --format applies to raw files; a SigMF file states its own datatype")
+        # a missing file of the pair is reported by the reader, naming the missing one
+        if path.is_dir():
+            raise CaptureError(f"{path}: is a directory, not a capture file")
+        return read_sigmf(path, rate=rate_hz, center=center_hz, strict=strict)
+    if not path.exists():
+        raise CaptureError(f"{path}: no such file")
+    if path.is_dir():
+        raise CaptureError(f"{path}: is a directory, not a capture file")
+    if kind == "sigmf-archive":
+        if format is not None:
+            raise ParameterError(f"{path}: --format applies to raw files; a SigMF archive states its own datatype")
+        return read_sigmf_archive(path, rate=rate_hz, center=center_hz, strict=strict)
+    if kind == "audio":
+        if format is not None:
+            raise ParameterError(f"{path}: --format applies to raw files; WAV/FLAC files state their own format")
+        if path.stat().st_size == 0:
+            raise CaptureError(f"{path}: the file is empty (0 samples)")
+        return read_audio_capture(path, rate=rate_hz, center=center_hz)
+    return read_raw(path, format=format, rate=rate_hz, center=center_hz, strict=strict)

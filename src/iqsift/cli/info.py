@@ -1,0 +1,99 @@
+"""``iqsift info``: what a capture holds, and its levels measured in one pass."""
+
+from __future__ import annotations
+
+from typing import Any, Optional
+
+import typer
+
+from ..captures import StatsAccumulator, open_capture
+from ..units import format_hz
+from .app import CenterOption, FormatOption, JsonOption, QuietOption, RateOption, StrictOption, app
+from .common import emit_json, progress_blocks
+
+
+def capture_summary(capture) -> dict[str, Any]:
+    """The metadata part of ``info`` (stable JSON keys)."""
+    return {
+        "path": str(capture.path),
+        "format": capture.format,
+        "datatype": capture.datatype,
+        "is_complex": capture.is_complex,
+        "sample_rate_hz": capture.sample_rate_hz,
+        "center_hz": capture.center_hz,
+        "samples": capture.samples,
+        "duration_s": capture.duration_s,
+        "segments": [s.as_dict() for s in capture.segments],
+        "annotations": [a.as_dict() for a in capture.annotations],
+    }
+
+
+@app.command()
+def info(
+    capture_path: str = typer.Argument(..., metavar="CAPTURE", help="Capture file (SigMF, WAV/FLAC, or raw)."),
+    json_out: bool = JsonOption,
+    format: Optional[str] = FormatOption,
+    rate: Optional[str] = RateOption,
+    center: Optional[str] = CenterOption,
+    strict: bool = StrictOption,
+    quiet: bool = QuietOption,
+) -> None:
+    """Describe a capture and measure its levels, DC offset, clipping and IQ imbalance."""
+    with open_capture(capture_path, format=format, rate=rate, center=center, strict=strict) as capture:
+        acc = StatsAccumulator(capture.is_complex, capture.clip_high)
+        for block in progress_blocks(capture.blocks(nonfinite="keep"), capture.samples, "measuring", quiet):
+            acc.update(block)
+        result = capture_summary(capture)
+        result["stats"] = acc.result().as_dict()
+    if json_out:
+        emit_json(result)
+    else:
+        typer.echo(format_info(result))
+
+
+def _db(value: float | None, unit: str = "dBFS") -> str:
+    return "-inf " + unit if value is None else f"{value:.2f} {unit}"
+
+
+def format_info(result: dict[str, Any]) -> str:
+    """Plain-text rendering of an ``info`` result."""
+    stats = result["stats"]
+    kind = "complex IQ" if result["is_complex"] else "real"
+    lines = [
+        f"capture       {result['path']}",
+        f"format        {result['format']} ({result['datatype']}, {kind})",
+        f"sample rate   {format_hz(result['sample_rate_hz']).replace('Hz', 'S/s')}",
+        f"centre        {format_hz(result['center_hz']) if result['center_hz'] is not None else 'unknown (frequencies are offsets)'}",
+        f"duration      {result['duration_s']:.6g} s ({result['samples']} samples)",
+        f"segments      {len(result['segments'])}",
+    ]
+    for i, seg in enumerate(result["segments"]):
+        freq = format_hz(seg["frequency_hz"]) if seg["frequency_hz"] is not None else "centre unknown"
+        when = f", {seg['datetime']}" if seg["datetime"] else ""
+        lines.append(
+            f"  [{i}] samples {seg['sample_start']}..{seg['sample_start'] + seg['sample_count'] - 1} at {freq}{when}"
+        )
+    lines.append(f"annotations   {len(result['annotations'])}")
+    for ann in result["annotations"][:20]:
+        span = "to the end" if ann["sample_count"] is None else f"{ann['sample_count']} samples"
+        band = ""
+        if ann["freq_lower_hz"] is not None and ann["freq_upper_hz"] is not None:
+            band = f", {format_hz(ann['freq_lower_hz'])} to {format_hz(ann['freq_upper_hz'])}"
+        lines.append(f"  from sample {ann['sample_start']}, {span}{band}: {ann['label'] or ann['comment'] or ''}")
+    if len(result["annotations"]) > 20:
+        lines.append(f"  ... {len(result['annotations']) - 20} more (see --json)")
+    lines += [
+        f"peak level    {_db(stats['peak_dbfs'])}",
+        f"RMS level     {_db(stats['rms_dbfs'])}",
+        f"DC offset     I {stats['dc_i']:+.5f}, Q {stats['dc_q']:+.5f} ({_db(stats['dc_dbfs'])})",
+        f"clipped       {stats['clipped_samples']} samples ({100 * stats['clipped_fraction']:.4f} %)",
+        f"non-finite    {stats['nonfinite_samples']} samples"
+        + ("  (NaN/Inf: processing commands refuse them unless --allow-nonfinite)" if stats["nonfinite_samples"] else ""),
+    ]
+    if result["is_complex"] and stats["gain_imbalance_db"] is not None:
+        irr = stats["image_rejection_db"]
+        lines.append(
+            f"IQ imbalance  gain {stats['gain_imbalance_db']:+.3f} dB, phase {stats['phase_imbalance_deg']:+.3f} deg, "
+            f"image rejection {'>90' if irr is None or irr > 90 else f'{irr:.1f}'} dB (assumes a noise-like signal)"
+        )
+    return "\n".join(lines)

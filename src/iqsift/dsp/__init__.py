@@ -1,0 +1,1 @@
+"""Signal processing: filter design, streaming stages, detectors, channelizer."""

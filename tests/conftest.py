@@ -1,0 +1,38 @@
+"""Shared test helpers."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from iqsift.cli import main
+
+
+def write_sigmf_pair(base: Path, raw: bytes, global_: dict, captures=None, annotations=None) -> Path:
+    """Write a .sigmf-meta/.sigmf-data pair by hand (independent of iqsift's writer)."""
+    meta = {"global": {"core:version": "1.2.6", **global_}, "captures": captures or [{"core:sample_start": 0}],
+            "annotations": annotations or []}
+    base.with_suffix(".sigmf-data").write_bytes(raw)
+    meta_path = base.with_suffix(".sigmf-meta")
+    meta_path.write_text(json.dumps(meta))
+    return meta_path
+
+
+@pytest.fixture
+def run_cli(capsys):
+    """Run the CLI in-process; returns (status, stdout, stderr)."""
+
+    def run(*args: str):
+        status = main([str(a) for a in args])
+        out = capsys.readouterr()
+        return status, out.out, out.err
+
+    return run
+
+
+@pytest.fixture
+def rng():
+    return np.random.default_rng(20261202)
