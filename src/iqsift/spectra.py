@@ -1,0 +1,793 @@
+"""Streaming spectrum accumulators for the receiver's tap points.
+
+A :class:`WelchAccumulator` sits on a tap point (capture input, after the mixer,
+after each decimation stage, after the detector, after audio post ...) and
+averages the power spectrum over the *whole run*, block by block, with bounded
+memory. The estimate is Welch's method of averaged modified periodograms
+(P. D. Welch, "The use of fast Fourier transform for the estimation of power
+spectra", IEEE Trans. Audio Electroacoust. AU-15(2), 1967) with the conventions
+of :func:`scipy.signal.welch` (periodic window from
+:func:`scipy.signal.get_window`, ``nfft = nperseg``, segments start every
+``nperseg - noverlap`` samples, an incomplete trailing segment is not used,
+``average="mean"``):
+
+* ``scaling="density"``: ``|FFT(w·x)|² / (fs · Σw²)``, in dBFS/Hz;
+* ``scaling="spectrum"``: ``|FFT(w·x)|² / (Σw)²``, in dBFS per bin, so a tone's
+  peak bin reads the tone's power (exactly when it sits on a bin centre; with the
+  flat-top window within about 0.01 dB anywhere, harris 1978).
+
+Segments continue across block boundaries (the unfinished tail of a block is kept
+and joined to the next one), so feeding a signal in any split gives the same
+result as feeding it at once, and the same result as ``scipy.signal.welch`` on the
+concatenated samples (with ``detrend=False``).
+
+Complex input gives the two-sided spectrum, ``fftshift``-ed, frequencies from
+``-fs/2`` to ``fs/2 - fs/nperseg`` plus ``center_hz``. Real input gives the
+one-sided spectrum (``return_onesided=True`` in scipy: every bin except DC and,
+for even ``nperseg``, Nyquist is doubled), frequencies ``0 .. fs/2`` plus
+``center_hz``. ``center_hz`` is the caller's business: the capture's RF centre
+before the mixer, 0 (baseband) after it.
+
+Detrending is off by default: a DC offset in the stream shows as a spike at the
+centre bin, which is what one wants to see when debugging a receiver chain (a
+DC offset left by a mixer or an envelope detector is a finding, not a nuisance).
+``detrend="constant"`` removes each segment's mean, as scipy's default does.
+
+Full scale follows the project convention: complex magnitude 1.0 is 0 dBFS and a
+power in dBFS is ``10·log10(mean |x|²)``; a complex tone ``a·exp(j ω n)`` reads
+``20·log10(a)`` dBFS and a real tone ``A·cos(ω n)`` reads ``20·log10(A) - 3.01``
+dBFS in the ``"spectrum"`` scaling.
+
+A :class:`SpectrogramAccumulator` keeps a time-frequency picture of an
+arbitrarily long input in bounded memory: at most ``max_columns`` columns; when
+full, adjacent columns are merged in pairs (power averaged) and every column
+thereafter averages twice as many segments.
+
+Asking for a result before one whole segment has been seen raises
+:class:`~iqsift.errors.ParameterError` (the fix is more samples or a smaller
+``nperseg``); check :attr:`WelchAccumulator.ready` first when that can happen.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+import tempfile
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any, Callable, Iterator, NamedTuple
+
+import numpy as np
+import scipy.fft
+import scipy.signal
+
+from .errors import OutputExistsError, ParameterError
+
+__all__ = [
+    "Spectrum",
+    "WelchAccumulator",
+    "SpectrogramAccumulator",
+    "SpectrogramResult",
+    "DB_FLOOR",
+]
+
+DB_FLOOR = -300.0
+"""Lowest level reported (dB): exact zeros (digital silence) read this instead of -inf,
+so every value stays finite and JSON-ready."""
+
+_POWER_FLOOR = 10.0 ** (DB_FLOOR / 10.0)
+
+# Samples framed at once per batched FFT (bounds the temporary memory of one feed).
+_BATCH_SAMPLES = 1 << 21
+
+_UNITS = {"density": "dBFS/Hz", "spectrum": "dBFS"}
+
+
+# ----------------------------------------------------------------------------- helpers
+
+
+def _to_db(power: np.ndarray) -> np.ndarray:
+    """10·log10 of a power array, floored at :data:`DB_FLOOR`."""
+    return 10.0 * np.log10(np.maximum(power, _POWER_FLOOR))
+
+
+def _atomic_write(path: str | os.PathLike, write: Callable[[Any], None], *, binary: bool, force: bool = True) -> Path:
+    """Write a file through a hidden temporary file in the same folder, then ``os.replace``.
+
+    ``write`` receives an open file object (bytes or text). Nothing is left behind if
+    it raises. With ``force`` false an existing file is refused.
+    """
+    final = Path(path)
+    if final.is_dir():
+        raise ParameterError(f"{final}: is a directory; give a file name for the output")
+    parent = final.parent if str(final.parent) else Path(".")
+    if not parent.is_dir():
+        raise ParameterError(f"{final}: the folder {parent} does not exist")
+    if final.exists() and not force:
+        raise OutputExistsError(f"{final}: exists; pass force=True to overwrite it")
+    handle, tmp = tempfile.mkstemp(prefix=f".{final.name}.", suffix=".part", dir=parent)
+    try:
+        with os.fdopen(handle, "wb" if binary else "w", **({} if binary else {"encoding": "utf-8", "newline": ""})) as fh:
+            write(fh)
+        # mkstemp creates 0600; give the file the permissions an ordinary open() would.
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(tmp, 0o666 & ~umask)
+        os.replace(tmp, final)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except FileNotFoundError:
+            pass
+        raise
+    return final
+
+
+def _check_rate(rate_hz: float, name: str = "rate_hz") -> float:
+    try:
+        rate = float(rate_hz)
+    except (TypeError, ValueError):
+        raise ParameterError(f"{name}: must be a sample rate in Hz, got {rate_hz!r}") from None
+    if not math.isfinite(rate) or rate <= 0:
+        raise ParameterError(f"{name}: must be a finite rate > 0 Hz, got {rate_hz!r}")
+    return rate
+
+
+def _check_int(value: Any, name: str, minimum: int) -> int:
+    if isinstance(value, bool) or not isinstance(value, (int, np.integer)):
+        raise ParameterError(f"{name}: must be an integer >= {minimum}, got {value!r}")
+    if int(value) < minimum:
+        raise ParameterError(f"{name}: must be an integer >= {minimum}, got {value!r}")
+    return int(value)
+
+
+def _check_scaling(scaling: str) -> str:
+    if scaling not in _UNITS:
+        raise ParameterError(f"scaling: must be 'density' or 'spectrum', got {scaling!r}")
+    return scaling
+
+
+# ----------------------------------------------------------------------------- result
+
+
+@dataclass(frozen=True, eq=False)
+class Spectrum:
+    """An averaged power spectrum read from an accumulator.
+
+    Attributes
+    ----------
+    name : str
+        Tap point / stage name (e.g. ``"mixer"``, ``"decim 2"``).
+    freqs_hz : numpy.ndarray
+        Bin frequencies (Hz), ascending, ``center_hz`` included (absolute RF before
+        the mixer, baseband after).
+    values_db : numpy.ndarray
+        Levels in ``units``, floored at :data:`DB_FLOOR`.
+    units : str
+        ``"dBFS/Hz"`` (density scaling) or ``"dBFS"`` (power per bin, spectrum scaling).
+    rate_hz : float
+        Sample rate (samples/s) at the tap point.
+    center_hz : float
+        Frequency (Hz) of the 0 Hz bin of the stream.
+    segments_averaged : int
+        Number of periodograms averaged.
+    enbw_hz : float
+        Equivalent noise bandwidth of one bin, ``fs·Σw²/(Σw)²`` (harris 1978):
+        ``density + 10·log10(enbw_hz) = spectrum``.
+    onesided : bool
+        True for the one-sided spectrum of a real stream.
+    scaling : str
+        ``"density"`` or ``"spectrum"`` (scipy.signal.welch's names).
+    nperseg : int
+        Segment (and FFT) length, samples.
+    window : str
+        Window description.
+    """
+
+    name: str
+    freqs_hz: np.ndarray
+    values_db: np.ndarray
+    units: str
+    rate_hz: float
+    center_hz: float
+    segments_averaged: int
+    enbw_hz: float
+    onesided: bool = False
+    scaling: str = "density"
+    nperseg: int = 0
+    window: str = ""
+
+    def __post_init__(self) -> None:
+        for attr in ("freqs_hz", "values_db"):
+            arr = np.array(getattr(self, attr), dtype=np.float64)
+            arr.setflags(write=False)
+            object.__setattr__(self, attr, arr)
+        if self.freqs_hz.shape != self.values_db.shape or self.freqs_hz.ndim != 1:
+            raise ParameterError(
+                f"Spectrum {self.name!r}: freqs_hz and values_db must be 1-D of equal length, "
+                f"got {self.freqs_hz.shape} and {self.values_db.shape}"
+            )
+
+    @property
+    def bin_width_hz(self) -> float:
+        """Bin spacing ``fs / nperseg`` (Hz)."""
+        return self.rate_hz / self.nperseg if self.nperseg else float("nan")
+
+    @property
+    def relative_freqs_hz(self) -> np.ndarray:
+        """Bin frequencies relative to ``center_hz`` (Hz)."""
+        return self.freqs_hz - self.center_hz
+
+    @property
+    def values_linear(self) -> np.ndarray:
+        """Levels as linear power (FS²/Hz or FS² per bin)."""
+        return 10.0 ** (self.values_db / 10.0)
+
+    def to_dict(self) -> dict[str, Any]:
+        """JSON-ready view (plain floats and lists)."""
+        return {
+            "name": self.name,
+            "units": self.units,
+            "scaling": self.scaling,
+            "rate_hz": float(self.rate_hz),
+            "center_hz": float(self.center_hz),
+            "segments_averaged": int(self.segments_averaged),
+            "enbw_hz": float(self.enbw_hz),
+            "bin_width_hz": float(self.bin_width_hz),
+            "onesided": bool(self.onesided),
+            "nperseg": int(self.nperseg),
+            "window": self.window,
+            "freqs_hz": self.freqs_hz.tolist(),
+            "values_db": self.values_db.tolist(),
+        }
+
+    as_dict = to_dict
+
+    def to_csv(self, path: str | os.PathLike, *, force: bool = True) -> Path:
+        """Write ``freq_hz,<level>`` rows to ``path`` (atomically); returns the path.
+
+        The level column is ``level_dbfs_per_hz`` (density) or ``level_dbfs``.
+        """
+        column = "level_dbfs_per_hz" if self.units == "dBFS/Hz" else "level_dbfs"
+
+        def write(fh: Any) -> None:
+            fh.write(f"freq_hz,{column}\n")
+            for f, v in zip(self.freqs_hz.tolist(), self.values_db.tolist()):
+                fh.write(f"{f:.15g},{v:.6f}\n")
+
+        return _atomic_write(path, write, binary=False, force=force)
+
+
+class SpectrogramResult(NamedTuple):
+    """Time-frequency picture from :meth:`SpectrogramAccumulator.result`.
+
+    ``power_db`` has shape ``(len(freqs_hz), len(times_s))`` (as
+    :func:`scipy.signal.spectrogram`); ``times_s`` are column centres in seconds
+    from the first sample fed.
+    """
+
+    times_s: np.ndarray
+    freqs_hz: np.ndarray
+    power_db: np.ndarray
+    units: str
+
+
+# ----------------------------------------------------------------------------- framing core
+
+
+class _SegmentStream:
+    """Windowed, batched periodograms of a stream, segments continuing across blocks.
+
+    Yields raw ``|FFT(w·seg)|²`` rows (float64, unscaled, natural FFT order; one-sided
+    rfft bins for a real stream).
+    """
+
+    def __init__(
+        self,
+        rate_hz: float,
+        nperseg: int,
+        overlap: float,
+        window: Any,
+        center_hz: float,
+        detrend: Any,
+        onesided: bool | None,
+        noverlap: int | None,
+    ) -> None:
+        self._rate = _check_rate(rate_hz)
+        self._nperseg = _check_int(nperseg, "nperseg", 2)
+        if noverlap is None:
+            try:
+                ov = float(overlap)
+            except (TypeError, ValueError):
+                raise ParameterError(f"overlap: must be a fraction in [0, 1), got {overlap!r}") from None
+            if not (0.0 <= ov < 1.0):
+                raise ParameterError(f"overlap: must be a fraction in [0, 1), got {overlap!r}")
+            # floor, like scipy's default noverlap = nperseg // 2 for overlap 0.5
+            nov = min(int(math.floor(ov * self._nperseg + 1e-9)), self._nperseg - 1)
+        else:
+            nov = _check_int(noverlap, "noverlap", 0)
+            if nov >= self._nperseg:
+                raise ParameterError(f"noverlap: must be < nperseg={self._nperseg}, got {noverlap!r}")
+        self._noverlap = nov
+        self._step = self._nperseg - nov
+        try:
+            self._center = float(center_hz)
+        except (TypeError, ValueError):
+            raise ParameterError(f"center_hz: must be a frequency in Hz, got {center_hz!r}") from None
+        if not math.isfinite(self._center):
+            raise ParameterError(f"center_hz: must be finite, got {center_hz!r}")
+        if detrend in (None, False, "none"):
+            self._detrend = False
+        elif detrend == "constant":
+            self._detrend = True
+        else:
+            raise ParameterError(f"detrend: must be None/False/'none' or 'constant', got {detrend!r}")
+        if onesided not in (None, True, False):
+            raise ParameterError(f"onesided: must be None (from the input type), True or False, got {onesided!r}")
+        self._onesided_request = onesided
+        if isinstance(window, str) or (isinstance(window, tuple) and window and isinstance(window[0], str)):
+            try:
+                win = scipy.signal.get_window(window, self._nperseg, fftbins=True)
+            except (ValueError, TypeError) as exc:
+                raise ParameterError(f"window: scipy.signal.get_window refused {window!r} ({exc})") from None
+            self._window_name = window if isinstance(window, str) else repr(window)
+        else:
+            win = np.asarray(window, dtype=np.float64)
+            if win.shape != (self._nperseg,) or not np.all(np.isfinite(win)) or not np.any(win):
+                raise ParameterError(
+                    f"window: an array window must be {self._nperseg} finite values, not all zero; got shape {win.shape}"
+                )
+            self._window_name = "custom"
+        self._win = np.ascontiguousarray(win, dtype=np.float64)
+        self._s1 = float(np.sum(self._win))
+        self._s2 = float(np.sum(self._win**2))
+        self.reset()
+
+    def reset(self) -> None:
+        self._onesided: bool | None = self._onesided_request
+        self._tail = np.zeros(0, dtype=np.complex128)
+        self._samples = 0
+        self._segments_seen = 0
+
+    # -- properties
+    @property
+    def rate_hz(self) -> float:
+        return self._rate
+
+    @property
+    def nperseg(self) -> int:
+        return self._nperseg
+
+    @property
+    def noverlap(self) -> int:
+        return self._noverlap
+
+    @property
+    def center_hz(self) -> float:
+        return self._center
+
+    @property
+    def window(self) -> np.ndarray:
+        w = self._win.view()
+        w.setflags(write=False)
+        return w
+
+    @property
+    def enbw_hz(self) -> float:
+        return self._rate * self._s2 / (self._s1 * self._s1)
+
+    @property
+    def samples_fed(self) -> int:
+        return self._samples
+
+    def _scale(self, scaling: str) -> float:
+        if scaling == "density":
+            return 1.0 / (self._rate * self._s2)
+        return 1.0 / (self._s1 * self._s1)
+
+    def _nbins(self) -> int:
+        return self._nperseg // 2 + 1 if self._onesided else self._nperseg
+
+    def _prepare(self, block: Any) -> np.ndarray | None:
+        x = np.asarray(block)
+        if x.ndim != 1:
+            raise ParameterError(f"block: must be a 1-D array of samples, got shape {x.shape}")
+        if x.dtype.kind not in "biufc":
+            raise ParameterError(f"block: must hold numbers, got dtype {x.dtype}")
+        if x.size == 0:
+            return None
+        is_complex = np.iscomplexobj(x)
+        if self._onesided is None:
+            self._onesided = not is_complex
+        if self._onesided:
+            if is_complex:
+                if np.any(x.imag != 0):
+                    raise ParameterError(
+                        "block: complex samples with a non-zero imaginary part fed to a one-sided "
+                        "(real-stream) spectrum; use onesided=False"
+                    )
+                x = x.real
+            x = x.astype(np.float64, copy=False)
+            if self._tail.dtype != np.float64:
+                self._tail = self._tail.real.astype(np.float64)
+        else:
+            x = x.astype(np.complex128, copy=False)
+        self._samples += x.size
+        return x
+
+    def periodograms(self, block: Any, limit: int | None = None) -> Iterator[np.ndarray]:
+        """Raw periodogram rows of every segment completed by ``block`` (at most ``limit``)."""
+        x = self._prepare(block)
+        if x is None:
+            return
+        buf = np.concatenate([self._tail, x]) if self._tail.size else x
+        n, nps, step = buf.size, self._nperseg, self._step
+        nseg = (n - nps) // step + 1 if n >= nps else 0
+        if limit is not None:
+            nseg = min(nseg, max(limit, 0))
+        if nseg == 0:
+            self._tail = buf.copy() if limit != 0 else buf[:0].copy()
+            return
+        consumed = nseg * step
+        self._tail = buf[consumed:].copy() if limit is None or nseg < limit else buf[:0].copy()
+        frames = np.lib.stride_tricks.sliding_window_view(buf, nps)[::step]
+        batch = max(1, _BATCH_SAMPLES // nps)
+        for start in range(0, nseg, batch):
+            seg = frames[start : min(start + batch, nseg)]
+            if self._detrend:
+                seg = seg - seg.mean(axis=1, keepdims=True)
+            seg = seg * self._win
+            if self._onesided:
+                spec = scipy.fft.rfft(seg, axis=1)
+            else:
+                spec = scipy.fft.fft(seg, axis=1)
+            self._segments_seen += seg.shape[0]
+            yield spec.real**2 + spec.imag**2
+
+    def _finish(self, mean_raw: np.ndarray, scaling: str) -> tuple[np.ndarray, np.ndarray]:
+        """Scale a raw mean periodogram (last axis = bins); returns (freqs_hz, power)."""
+        p = mean_raw * self._scale(scaling)
+        nps = self._nperseg
+        if self._onesided:
+            p = p.copy()
+            if nps % 2 == 0:
+                p[..., 1:-1] *= 2.0
+            else:
+                p[..., 1:] *= 2.0
+            freqs = scipy.fft.rfftfreq(nps, 1.0 / self._rate)
+        else:
+            p = scipy.fft.fftshift(p, axes=-1)
+            freqs = scipy.fft.fftshift(scipy.fft.fftfreq(nps, 1.0 / self._rate))
+        return freqs + self._center, p
+
+
+# ----------------------------------------------------------------------------- Welch
+
+
+class WelchAccumulator:
+    """Streaming Welch power spectral density over a whole run.
+
+    Parameters
+    ----------
+    rate_hz : float
+        Sample rate at the tap point (samples/s).
+    nperseg : int, default 4096
+        Segment and FFT length (samples); bin spacing is ``rate_hz / nperseg`` Hz.
+    overlap : float, default 0.5
+        Segment overlap as a fraction of ``nperseg``; ``noverlap = floor(overlap·nperseg)``
+        (0.5 gives scipy's default ``nperseg // 2``).
+    window : str, tuple or array_like, default "hann"
+        Anything :func:`scipy.signal.get_window` takes (periodic form, as
+        scipy.signal.welch uses), or an array of ``nperseg`` weights. Use
+        ``"flattop"`` to read tone levels without scalloping loss.
+    center_hz : float, default 0.0
+        Added to every bin frequency (Hz): the capture's RF centre before the mixer,
+        0 after it.
+    name : str
+        Tap point name, carried into :class:`Spectrum`.
+    max_segments : int or None
+        Stop averaging after this many segments (None: average the whole run).
+        Later samples are counted in :attr:`samples_fed` but not analysed.
+    detrend : None, False, "none" or "constant", default None
+        None: no detrending, so DC shows as a spike at the centre bin (wanted when
+        debugging). "constant": subtract each segment's mean (scipy's default).
+    onesided : bool or None, default None
+        None: one-sided for real input, two-sided for complex input (decided by the
+        first non-empty block). True: one-sided; complex blocks must have a zero
+        imaginary part (a real IF capture delivered as complex64). False: two-sided
+        even for real input.
+    noverlap : int or None
+        Overlap in samples; overrides ``overlap`` when given.
+
+    Notes
+    -----
+    Welch (1967); scaling as :func:`scipy.signal.welch` (``detrend=False``,
+    ``average="mean"``). The unfinished tail (fewer than ``nperseg`` samples after
+    the last complete segment) is not analysed, as in scipy (``padded=False``).
+    Memory is one segment plus the spectrum sum, whatever the run length.
+    """
+
+    def __init__(
+        self,
+        rate_hz: float,
+        nperseg: int = 4096,
+        overlap: float = 0.5,
+        window: Any = "hann",
+        center_hz: float = 0.0,
+        name: str = "",
+        max_segments: int | None = None,
+        *,
+        detrend: Any = None,
+        onesided: bool | None = None,
+        noverlap: int | None = None,
+    ) -> None:
+        self._stream = _SegmentStream(rate_hz, nperseg, overlap, window, center_hz, detrend, onesided, noverlap)
+        self.name = str(name)
+        self._max_segments = None if max_segments is None else _check_int(max_segments, "max_segments", 1)
+        self.reset()
+
+    def reset(self) -> None:
+        """Forget everything fed so far (settings are kept)."""
+        self._stream.reset()
+        self._sum: np.ndarray | None = None
+        self._count = 0
+
+    # -- properties
+    rate_hz = property(lambda self: self._stream.rate_hz, doc="Sample rate (samples/s).")
+    nperseg = property(lambda self: self._stream.nperseg, doc="Segment length (samples).")
+    noverlap = property(lambda self: self._stream.noverlap, doc="Overlap between segments (samples).")
+    center_hz = property(lambda self: self._stream.center_hz, doc="Frequency of the 0 Hz bin (Hz).")
+    enbw_hz = property(lambda self: self._stream.enbw_hz, doc="Equivalent noise bandwidth of a bin (Hz).")
+    window = property(lambda self: self._stream.window, doc="The window weights (read-only).")
+    samples_fed = property(lambda self: self._stream.samples_fed, doc="Samples fed since the last reset.")
+
+    @property
+    def segments_averaged(self) -> int:
+        """Number of segments in the average so far."""
+        return self._count
+
+    @property
+    def ready(self) -> bool:
+        """True once at least one segment has been averaged (a result can be read)."""
+        return self._count > 0
+
+    @property
+    def onesided(self) -> bool | None:
+        """One-sided (real stream) or not; None until the first non-empty block."""
+        return self._stream._onesided
+
+    def feed(self, block: Any) -> "WelchAccumulator":
+        """Add a block of samples (any length, including 0); returns self.
+
+        Complex blocks give a two-sided spectrum, real blocks a one-sided one
+        (see ``onesided``); all blocks of a run must agree.
+        """
+        if self._max_segments is not None:
+            limit: int | None = self._max_segments - self._count
+            if limit <= 0:
+                x = np.asarray(block)
+                if x.ndim != 1:
+                    raise ParameterError(f"block: must be a 1-D array of samples, got shape {x.shape}")
+                self._stream._samples += x.size
+                return self
+        else:
+            limit = None
+        for rows in self._stream.periodograms(block, limit):
+            part = rows.sum(axis=0)
+            if self._sum is None:
+                self._sum = part
+            else:
+                self._sum += part
+            self._count += rows.shape[0]
+        return self
+
+    __call__ = feed
+
+    def result(self, scaling: str = "density") -> Spectrum:
+        """The average so far as a :class:`Spectrum`.
+
+        Parameters
+        ----------
+        scaling : {"density", "spectrum"}
+            "density": PSD in dBFS/Hz; "spectrum": power per bin in dBFS.
+
+        Raises
+        ------
+        ParameterError
+            If no complete segment has been fed yet.
+        """
+        scaling = _check_scaling(scaling)
+        if self._sum is None or self._count == 0:
+            raise ParameterError(
+                f"spectrum {self.name or '(unnamed)'}: no complete segment yet ({self.samples_fed} samples fed, "
+                f"nperseg={self.nperseg}); feed at least nperseg samples or lower nperseg"
+            )
+        freqs, power = self._stream._finish(self._sum / self._count, scaling)
+        return Spectrum(
+            name=self.name,
+            freqs_hz=freqs,
+            values_db=_to_db(power),
+            units=_UNITS[scaling],
+            rate_hz=self.rate_hz,
+            center_hz=self.center_hz,
+            segments_averaged=self._count,
+            enbw_hz=self.enbw_hz,
+            onesided=bool(self._stream._onesided),
+            scaling=scaling,
+            nperseg=self.nperseg,
+            window=self._stream._window_name,
+        )
+
+    def density(self) -> Spectrum:
+        """Power spectral density in dBFS/Hz (``result("density")``)."""
+        return self.result("density")
+
+    def power_spectrum(self) -> Spectrum:
+        """Power per bin in dBFS (``result("spectrum")``); a tone's peak reads its power."""
+        return self.result("spectrum")
+
+
+# ----------------------------------------------------------------------------- spectrogram
+
+
+class SpectrogramAccumulator:
+    """Bounded-memory spectrogram of an arbitrarily long stream.
+
+    Each column is the mean of ``segments_per_column`` consecutive periodograms
+    (window, overlap and scaling as :class:`WelchAccumulator`). At most
+    ``max_columns`` columns are kept: when the store is full, adjacent columns are
+    merged in pairs (their powers averaged, which equals the mean over the union of
+    their segments, since both hold the same number) and ``segments_per_column``
+    doubles. A ten-hour capture at any rate fits in ``max_columns × nperseg``
+    float64 values.
+
+    Parameters
+    ----------
+    rate_hz : float
+        Sample rate (samples/s).
+    nperseg : int
+        Segment / FFT length (samples).
+    max_columns : int, default 800
+        Most columns kept (>= 2).
+    center_hz : float, default 0.0
+        Added to the bin frequencies (Hz).
+    window, overlap, detrend, onesided, noverlap, scaling
+        As :class:`WelchAccumulator`; ``scaling`` sets the result's units
+        ("density" → dBFS/Hz, "spectrum" → dBFS per bin).
+    """
+
+    def __init__(
+        self,
+        rate_hz: float,
+        nperseg: int,
+        max_columns: int = 800,
+        center_hz: float = 0.0,
+        *,
+        window: Any = "hann",
+        overlap: float = 0.5,
+        detrend: Any = None,
+        onesided: bool | None = None,
+        noverlap: int | None = None,
+        scaling: str = "density",
+    ) -> None:
+        self._stream = _SegmentStream(rate_hz, nperseg, overlap, window, center_hz, detrend, onesided, noverlap)
+        self._max_columns = _check_int(max_columns, "max_columns", 2)
+        self._scaling = _check_scaling(scaling)
+        self.reset()
+
+    def reset(self) -> None:
+        """Forget everything fed so far (settings are kept)."""
+        self._stream.reset()
+        self._cols: np.ndarray | None = None  # (max_columns, nbins) raw mean periodograms
+        self._ncols = 0
+        self._per_col = 1
+        self._pending: np.ndarray | None = None  # raw sum of the unfinished column
+        self._pending_count = 0
+        self._merges = 0
+
+    rate_hz = property(lambda self: self._stream.rate_hz, doc="Sample rate (samples/s).")
+    nperseg = property(lambda self: self._stream.nperseg, doc="Segment length (samples).")
+    noverlap = property(lambda self: self._stream.noverlap, doc="Overlap between segments (samples).")
+    center_hz = property(lambda self: self._stream.center_hz, doc="Frequency of the 0 Hz bin (Hz).")
+    max_columns = property(lambda self: self._max_columns, doc="Most columns kept.")
+    samples_fed = property(lambda self: self._stream.samples_fed, doc="Samples fed since the last reset.")
+
+    @property
+    def segments_per_column(self) -> int:
+        """Segments averaged in each complete column (a power of two)."""
+        return self._per_col
+
+    @property
+    def columns(self) -> int:
+        """Columns a result would have now (complete ones plus an unfinished one)."""
+        return self._ncols + (1 if self._pending_count else 0)
+
+    @property
+    def segments_seen(self) -> int:
+        """Segments analysed so far."""
+        return self._ncols * self._per_col + self._pending_count
+
+    @property
+    def storage_shape(self) -> tuple[int, int] | None:
+        """Shape of the column store (fixed once allocated): ``(max_columns, bins)``."""
+        return None if self._cols is None else self._cols.shape
+
+    def _merge(self) -> None:
+        m = self._ncols // 2
+        c = self._cols
+        assert c is not None
+        merged = 0.5 * (c[0 : 2 * m : 2] + c[1 : 2 * m : 2])
+        leftover = c[2 * m].copy() if self._ncols % 2 else None
+        c[:m] = merged
+        self._ncols = m
+        self._per_col *= 2
+        self._merges += 1
+        if leftover is not None:
+            # an odd column out holds half a (new) column: it becomes the pending one
+            if self._pending is None:
+                self._pending = np.zeros(c.shape[1])
+            self._pending[:] = leftover * (self._per_col // 2)
+            self._pending_count = self._per_col // 2
+
+    def feed(self, block: Any) -> "SpectrogramAccumulator":
+        """Add a block of samples (any length, including 0); returns self."""
+        for rows in self._stream.periodograms(block):
+            if self._cols is None:
+                self._cols = np.zeros((self._max_columns, rows.shape[1]))
+                self._pending = np.zeros(rows.shape[1])
+            i, n = 0, rows.shape[0]
+            while i < n:
+                k = self._per_col
+                if self._pending_count or n - i < k:
+                    take = min(k - self._pending_count, n - i)
+                    self._pending += rows[i : i + take].sum(axis=0)
+                    self._pending_count += take
+                    i += take
+                    if self._pending_count == k:
+                        self._cols[self._ncols] = self._pending / k
+                        self._ncols += 1
+                        self._pending[:] = 0.0
+                        self._pending_count = 0
+                else:
+                    room = self._max_columns - self._ncols
+                    full = min((n - i) // k, room)
+                    if full:
+                        chunk = rows[i : i + full * k].reshape(full, k, -1)
+                        self._cols[self._ncols : self._ncols + full] = chunk.mean(axis=1)
+                        self._ncols += full
+                        i += full * k
+                if self._ncols == self._max_columns:
+                    self._merge()
+        return self
+
+    __call__ = feed
+
+    def result(self) -> SpectrogramResult:
+        """Columns so far (the unfinished last column included, averaged over what it holds).
+
+        Raises
+        ------
+        ParameterError
+            If no complete segment has been fed yet.
+        """
+        if self._cols is None or self.columns == 0:
+            raise ParameterError(
+                f"spectrogram: no complete segment yet ({self.samples_fed} samples fed, "
+                f"nperseg={self.nperseg}); feed at least nperseg samples or lower nperseg"
+            )
+        raw = self._cols[: self._ncols]
+        counts = [self._per_col] * self._ncols
+        if self._pending_count:
+            raw = np.vstack([raw, self._pending[None, :] / self._pending_count])
+            counts.append(self._pending_count)
+        freqs, power = self._stream._finish(raw, self._scaling)
+        step, nps, fs = self._stream._step, self.nperseg, self.rate_hz
+        first = np.concatenate([[0], np.cumsum(counts)[:-1]])  # first segment index of each column
+        last = first + np.asarray(counts) - 1
+        times = ((first * step) + (last * step + nps)) / 2.0 / fs
+        return SpectrogramResult(
+            times_s=times,
+            freqs_hz=freqs,
+            power_db=_to_db(power).T.copy(),
+            units=_UNITS[self._scaling],
+        )
