@@ -37,7 +37,10 @@ CHANNELS = [
 
 def reference(x, ch, n_fft):
     fp = ch.carrier_hz + ch.center_offset_hz
+    # mix first, then the low-pass shifted by the passband offset about its centre tap (a pure delay)
+    c = (ch.taps.size - 1) / 2
     hc = ch.taps * np.exp(2j * np.pi * fp / FS * np.arange(ch.taps.size))
+    hc = hc * np.exp(-2j * np.pi * ch.center_offset_hz / FS * c)
     y = ss.lfilter(hc, 1, x.astype(np.complex128))[:: ch.decimation]
     k0 = round(ch.carrier_hz / FS * n_fft)
     g = np.arange(y.size) * ch.decimation

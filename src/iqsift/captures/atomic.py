@@ -69,7 +69,7 @@ class OutputSet:
         final = check_output_path(path, self.force)
         if any(final.resolve() == f.resolve() for f, _ in self._pending):
             raise ParameterError(f"{final}: named twice as an output")
-        handle, tmp = tempfile.mkstemp(prefix=f".{final.name}.", suffix=".part", dir=final.parent or ".")
+        handle, tmp = tempfile.mkstemp(prefix=f".{final.stem}.", suffix=f".part{final.suffix}", dir=final.parent or ".")
         os.close(handle)
         temp = Path(tmp)
         self._pending.append((final, temp))

@@ -18,7 +18,9 @@ except ImportError:  # pragma: no cover - depends on the installed typer
 from typer import Abort, Exit
 
 from ..errors import IqsiftError
-from . import info as _info  # noqa: F401  (registers the command)
+from . import demod as _demod  # noqa: F401  (each import registers a command)
+from . import design_cmd as _design  # noqa: F401
+from . import info as _info  # noqa: F401
 from .app import app
 
 __all__ = ["app", "main"]

@@ -25,6 +25,9 @@ Details of this implementation:
 * The carrier generally falls between bins; the residual ``f_c − k0·fs/N``
   (at most half a bin) is left for a fine mixer at the channel rate, which
   this module exposes as :attr:`BankChannel.residual_hz`.
+* The channel filter is the prototype modulated to the passband centre about
+  its middle tap, so the band-pass is a pure delay of ``(P−1)/2`` samples
+  relative to mixing by the carrier (no constant phase for one-sided passbands).
 * Content outside a channel's ``K`` bins is discarded, not aliased: the only
   leakage into a channel is its filter's stopband response.
 
@@ -174,7 +177,12 @@ class FastConvChannelizer:
             # channel filter: prototype shifted onto the passband centre (absolute offset in the input)
             centre = ch.carrier_hz + ch.center_offset_hz
             taps = np.asarray(ch.taps, dtype=np.float64)
+            # modulate about the filter's centre tap c = (P-1)/2 so the complex band-pass delays the
+            # channel by exactly c samples with no extra phase (as mixing by the carrier first, then
+            # filtering with the low-pass shifted by the passband offset, would)
+            c = (taps.size - 1) / 2
             shifted = taps * np.exp(2j * np.pi * centre / fs * np.arange(taps.size))
+            shifted *= np.exp(-2j * np.pi * ch.center_offset_hz / fs * c)
             spectrum = np.fft.fft(shifted, n)
             m = np.fft.fftfreq(k, 1.0 / k).astype(np.int64)  # 0..K/2-1, -K/2..-1
             idx = (k0 + m) % n

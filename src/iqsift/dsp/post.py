@@ -1,0 +1,191 @@
+"""Audio post-processing after the detector: carrier normalisation and delay compensation.
+
+For AM with a carrier the detector output is ``A(t)·(1 + m·s(t))``. Dividing the
+AC part by the slowly varying carrier level ``A(t)`` gives ``m·s(t)``: audio whose
+full scale is 100 % modulation, independent of the received level and of slow
+(flat) fading — the classic AM receiver's carrier-derived gain control, done
+here with a linear-phase low-pass instead of a feedback loop.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from .design import design_lowpass
+from .stages import FirFilter
+
+__all__ = ["CarrierNormaliser", "DelayTrim", "FractionalDelay"]
+
+
+class CarrierNormaliser:
+    """``(d − c)/c`` with ``c`` the carrier level from a linear-phase low-pass of ``d``.
+
+    Parameters
+    ----------
+    rate_hz : float
+        Sample rate of the detector output (samples/s).
+    pass_hz, stop_hz : float
+        Edges of the carrier-level low-pass (Hz): the level follows fading
+        slower than ``pass_hz``; modulation above ``stop_hz`` is removed
+        from the level by at least ``atten_db``.
+    floor : float
+        Smallest carrier level divided by (full scale = 1), so silence does
+        not blow up.
+    normalise : bool
+        Divide by the level (AM with carrier). Without it the stage is a
+        linear-phase DC remover ``d − LPF(d)``: unlike a one-pole DC blocker
+        it does not shift the phase of low audio tones (a 20 Hz one-pole
+        high-pass turns a 410 Hz tone by 2.8°, an error of −26 dB).
+
+    Notes
+    -----
+    The signal path is delayed by the low-pass's group delay ``(N−1)/2``
+    (an integer: N is odd) so that ``d`` and ``c`` line up; that is
+    :attr:`delay`. The stage holds nothing at the end (flush is empty).
+    """
+
+    def __init__(
+        self,
+        rate_hz: float,
+        pass_hz: float = 4.0,
+        stop_hz: float = 60.0,
+        atten_db: float = 60.0,
+        floor: float = 1e-6,
+        normalise: bool = True,
+    ) -> None:
+        stop_hz = min(stop_hz, 0.45 * rate_hz)
+        pass_hz = min(pass_hz, 0.5 * stop_hz)
+        self.design = design_lowpass(rate_hz, pass_hz, stop_hz, ripple_db=0.5, atten_db=atten_db, method="kaiser")
+        self._lp = FirFilter(self.design.taps, rate_hz)
+        self._lag = int(round(self.design.group_delay_samples))
+        self.rate_hz = float(rate_hz)
+        self.floor = float(floor)
+        self.normalise = bool(normalise)
+        self.reset()
+
+    @property
+    def rate_in(self) -> float:
+        return self.rate_hz
+
+    @property
+    def rate_out(self) -> float:
+        return self.rate_hz
+
+    @property
+    def delay(self) -> float:
+        """Delay in samples (the level filter's group delay)."""
+        return float(self._lag)
+
+    def reset(self) -> None:
+        self._lp.reset()
+        self._cover = FirFilter(self.design.taps, self.rate_hz)
+        self._history = np.zeros(self._lag, np.float64)
+        self.last_level = None
+
+    def process(self, block: np.ndarray, valid: np.ndarray | None = None) -> np.ndarray:
+        """Process a block; ``valid`` marks the samples that carry signal (default: all).
+
+        The level is a normalised convolution (Knutsson & Westin 1993):
+        ``LPF(d·v) / LPF(v)``, so the start and end of a stream (and gaps
+        marked invalid) do not drag the level towards zero.
+        """
+        d = np.asarray(block, dtype=np.float64)
+        if d.size == 0:
+            return np.zeros(0, np.float32)
+        v = np.ones(d.size) if valid is None else np.asarray(valid, dtype=np.float64)
+        level = np.asarray(self._lp.process(d * v), dtype=np.float64)
+        cover = np.asarray(self._cover.process(v), dtype=np.float64)
+        level = np.where(cover > 1e-3, level / np.maximum(cover, 1e-3), 0.0)
+        joined = np.concatenate([self._history, d])
+        delayed = joined[: d.size]
+        self._history = joined[d.size :]
+        self.last_level = float(level[-1])
+        out = delayed - level
+        if self.normalise:
+            out /= np.maximum(np.abs(level), self.floor)
+        return out.astype(np.float32)
+
+    def flush(self) -> np.ndarray:
+        self.reset()
+        return np.zeros(0, np.float32)
+
+
+class DelayTrim:
+    """Drop the first ``count`` samples of a stream (compensates a known processing delay)."""
+
+    def __init__(self, count: int) -> None:
+        self.count = int(count)
+        self.reset()
+
+    def reset(self) -> None:
+        self._left = self.count
+
+    def process(self, block: np.ndarray) -> np.ndarray:
+        if self._left <= 0:
+            return block
+        drop = min(self._left, block.shape[0])
+        self._left -= drop
+        return block[drop:]
+
+
+class FractionalDelay:
+    """Delay a real signal by a non-integer number of samples with a windowed-sinc interpolator.
+
+    The interpolator is the ideal fractional delay ``sinc(n − c)`` (Laakso et
+    al., "Splitting the unit delay", IEEE Signal Processing Magazine, Jan. 1996)
+    under a Kaiser window centred on the same point ``c``; it is flat and delays
+    exactly, to better than 0.01 dB and 1e-3 samples, below ``0.4·fs``.
+
+    Parameters
+    ----------
+    rate_hz : float
+        Sample rate (samples/s).
+    delay_samples : float
+        The delay ``c``; at least ``half_length``.
+    half_length : int
+        Taps on each side of the centre.
+    beta : float
+        Kaiser window parameter.
+    """
+
+    def __init__(self, rate_hz: float, delay_samples: float, half_length: int = 24, beta: float = 8.0) -> None:
+        if not delay_samples >= half_length:
+            raise ValueError(f"delay_samples: must be >= half_length {half_length}, got {delay_samples!r}")
+        centre = float(delay_samples)
+        k = np.arange(int(np.ceil(centre + half_length)) + 1)
+        arg = (k - centre) / (half_length + 1)
+        window = np.i0(beta * np.sqrt(np.clip(1 - arg**2, 0.0, None))) / np.i0(beta)
+        window[np.abs(arg) >= 1] = 0.0
+        taps = np.sinc(k - centre) * window
+        taps /= taps.sum()
+        first = int(np.argmax(taps != 0))
+        self.taps = taps
+        self._filter = FirFilter(taps, rate_hz, method="direct" if taps.size <= 256 else "fft")
+        self.rate_hz = float(rate_hz)
+        self._delay = centre
+        del first
+
+    @property
+    def rate_in(self) -> float:
+        return self.rate_hz
+
+    @property
+    def rate_out(self) -> float:
+        return self.rate_hz
+
+    @property
+    def delay(self) -> float:
+        """Delay in samples."""
+        return self._delay
+
+    def reset(self) -> None:
+        self._filter.reset()
+
+    def process(self, block: np.ndarray) -> np.ndarray:
+        if np.asarray(block).size == 0:
+            return np.zeros(0, np.float32)
+        return np.asarray(self._filter.process(np.asarray(block, dtype=np.float32)), dtype=np.float32)
+
+    def flush(self) -> np.ndarray:
+        self.reset()
+        return np.zeros(0, np.float32)

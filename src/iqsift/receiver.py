@@ -1,0 +1,747 @@
+"""One channel from a wideband capture: front end, detector, audio post, with tap points.
+
+The chain (DESIGN.md data flow)::
+
+    IQ at fs ──► front end ──────────────► fine mix ──► detector ──► AM: carrier ──► audio band ──► resampler ──► audio
+                 (mix by the carrier bin,   residual     envelope     normalisation   (300–3000 Hz)   to the audio
+                  channel filter, decimate  carrier      coherent     SSB/DSB: AGC    or DC block     rate
+                  to the channel rate)      offset       usb/lsb/dsb  (optional)
+
+Two front ends implement the same contract:
+
+* ``"fft"`` (default): a fast-convolution filter bank (Borgerding 2006; see
+  :mod:`iqsift.dsp.channelizer`) with one channel. Mixing, a sharp channel
+  filter and decimation in one FFT step — the engine that makes long captures
+  cheap, and the same code path as multi-channel extraction.
+* ``"polyphase"``: the textbook time-domain chain — a frequency-translating
+  polyphase FIR decimator followed by further FIR decimation stages
+  (Crochiere & Rabiner 1983; harris 2004), planned by
+  :func:`iqsift.dsp.design.plan_decimation`. Slower, used as a cross-check.
+
+The receiver compensates its own delay: audio sample ``k`` belongs to capture
+time ``start + k / audio_rate``, and ``n`` input samples give
+``round(n · audio_rate / fs)`` audio samples. The compensated delay and what
+is left of it (below one audio sample) are reported.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Any, Iterator
+
+import numpy as np
+
+from .channel import Channel
+from .dsp.channelizer import BankChannel, FastConvChannelizer, choose_fft_size, power_of_two_decimation
+from .dsp.design import LowpassDesign, design_lowpass, design_resampler, plan_decimation
+from .dsp.detectors import make_detector
+from .dsp.post import CarrierNormaliser, DelayTrim, FractionalDelay
+from .dsp.stages import AGC, AudioBandpass, FirDecimator, Mixer, RationalResampler
+from .errors import ParameterError
+
+__all__ = ["ChannelDesign", "design_channel", "ChannelBackEnd", "Receiver", "ReceiverResult", "TAP_NAMES"]
+
+TAP_NAMES = ("input", "channel", "detector", "audio")
+"""Tap points where a spectrum accumulator can sit: the wideband input, the channel baseband after
+the front end and fine mixing, the detector output, and the final audio."""
+
+AM_MODES = ("envelope", "coherent")
+EDGE_FADE_S = 0.005
+"""Length of the raised-cosine fade-in and fade-out at the ends of the audio (s)."""
+
+
+# ----------------------------------------------------------------------------------------------
+# Design
+# ----------------------------------------------------------------------------------------------
+@dataclass
+class ChannelDesign:
+    """Everything fixed before the first sample: rates, filters, stages.
+
+    Attributes
+    ----------
+    rate_hz : float
+        Input rate (samples/s).
+    carrier_offset_hz : float
+        Carrier relative to the capture centre (Hz).
+    channel : Channel
+        The channel.
+    decimation : int
+        Input samples per channel-rate sample.
+    channel_rate_hz : float
+        Rate of the channel baseband (samples/s).
+    prototype : LowpassDesign
+        Channel filter prototype at the input rate (half-width passband).
+    engine : str
+        ``"fft"`` or ``"polyphase"``.
+    resampler : ResamplerDesign
+        Channel rate to audio rate.
+    """
+
+    rate_hz: float
+    carrier_offset_hz: float
+    channel: Channel
+    decimation: int
+    channel_rate_hz: float
+    prototype: LowpassDesign | None
+    engine: str
+    resampler: Any
+    ripple_db: float
+    atten_db: float
+    real_input: bool = False
+    polyphase_plan: Any = None
+    fft_size: int | None = None
+    fft_hop: int | None = None
+    extra: dict = field(default_factory=dict)
+
+    @property
+    def filter_centre_hz(self) -> float:
+        """Centre of the channel filter relative to the capture centre (Hz)."""
+        lo, hi = self.channel.passband_hz
+        return self.carrier_offset_hz + 0.5 * (lo + hi)
+
+    @property
+    def half_width_hz(self) -> float:
+        lo, hi = self.channel.passband_hz
+        return 0.5 * (hi - lo)
+
+    def front_end_delay_s(self) -> float:
+        """Group delay of the front end (s)."""
+        if self.engine == "fft":
+            return self.prototype.group_delay_s
+        return sum(stage.lowpass.group_delay_s for stage in self.polyphase_plan.stages)
+
+    def stages(self) -> list[dict[str, Any]]:
+        """The chain as a list of stage descriptions (for reports and ``iqsift design``)."""
+        lo, hi = self.channel.passband_hz
+        out: list[dict[str, Any]] = []
+        if self.engine == "fft":
+            p = self.prototype
+            n, hop = self.fft_size, self.fft_hop
+            # cost estimate: complex FFT ~ 5 N log2 N real flops (Cooley-Tukey count), half of them multiply-adds
+            fwd = 2.5 * n * math.log2(n) / hop
+            k = n // self.decimation
+            inv = (2.5 * k * math.log2(max(k, 2)) + 4 * k) / hop
+            out.append({
+                "name": "fast-convolution channel filter",
+                "kind": "fft_channelizer",
+                "rate_in_hz": self.rate_hz,
+                "rate_out_hz": self.channel_rate_hz,
+                "down": self.decimation,
+                "num_taps": p.num_taps,
+                "method": p.method,
+                "fft_size": n,
+                "hop": hop,
+                "mix_hz": self.carrier_offset_hz,
+                "filter_centre_hz": self.filter_centre_hz,
+                "channel_passband_hz": [lo, hi],
+                "passband_hz": p.passband_hz,
+                "stopband_hz": p.stopband_hz,
+                "ripple_db": p.ripple_db,
+                "atten_db": p.atten_db,
+                "measured_ripple_db": p.measured_ripple_db,
+                "measured_atten_db": p.measured_atten_db,
+                "group_delay_s": p.group_delay_s,
+                "macs_per_input_sample": fwd + inv,
+                "macs_per_chain_input_sample": fwd + inv,
+            })
+        else:
+            for stage in self.polyphase_plan.stages:
+                lp = stage.lowpass
+                out.append({
+                    "name": f"FIR decimator /{stage.down}" + (" (translating)" if stage.index == 0 else ""),
+                    "kind": "fir_decimator",
+                    "rate_in_hz": stage.rate_in_hz,
+                    "rate_out_hz": stage.rate_out_hz,
+                    "down": stage.down,
+                    "num_taps": lp.num_taps,
+                    "method": lp.method,
+                    "mix_hz": self.filter_centre_hz if stage.index == 0 else None,
+                    "passband_hz": lp.passband_hz,
+                    "stopband_hz": lp.stopband_hz,
+                    "ripple_db": lp.ripple_db,
+                    "atten_db": lp.atten_db,
+                    "measured_ripple_db": lp.measured_ripple_db,
+                    "measured_atten_db": lp.measured_atten_db,
+                    "group_delay_s": lp.group_delay_s,
+                    "macs_per_input_sample": stage.macs_per_input_sample,
+                    "macs_per_chain_input_sample": stage.macs_per_chain_input_sample,
+                })
+        ch_rate = self.channel_rate_hz
+        out.append({"name": f"detector ({self.channel.mode})", "kind": "detector", "rate_in_hz": ch_rate,
+                    "rate_out_hz": ch_rate})
+        band = self.channel.audio_band
+        out.append({
+            "name": "audio band-pass" if band else "DC removal (linear phase)",
+            "kind": "audio_filter",
+            "rate_in_hz": ch_rate,
+            "rate_out_hz": ch_rate,
+            "passband_hz": f"{band[0]:g}-{band[1]:g}" if band else None,
+        })
+        r = self.resampler.to_dict()
+        r["name"] = f"resampler x{self.resampler.up}/{self.resampler.down}"
+        r["macs_per_chain_input_sample"] = self.resampler.macs_per_input_sample / self.decimation
+        out.append(r)
+        return out
+
+    def as_dict(self, center_hz: float | None = None) -> dict[str, Any]:
+        """The report's ``design`` object."""
+        stages = self.stages()
+        macs = sum(s.get("macs_per_chain_input_sample") or 0.0 for s in stages)
+        return {
+            "engine": self.engine,
+            "rate_in_hz": self.rate_hz,
+            "channel_rate_hz": self.channel_rate_hz,
+            "audio_rate_hz": self.resampler.rate_out_hz,
+            "decimation": self.decimation,
+            "carrier_offset_hz": self.carrier_offset_hz,
+            "ripple_db": self.ripple_db,
+            "atten_db": self.atten_db,
+            "transition_hz": self.channel.transition,
+            "real_input": self.real_input,
+            "macs_per_input_sample": macs,
+            "stages": stages,
+        }
+
+
+def design_channel(
+    rate_hz: float,
+    channel: Channel,
+    *,
+    center_hz: float | None = None,
+    real_input: bool = False,
+    engine: str = "fft",
+    ripple_db: float = 0.1,
+    atten_db: float = 80.0,
+) -> ChannelDesign:
+    """Design the chain for ``channel`` in a capture at ``rate_hz`` centred on ``center_hz``.
+
+    The channel rate is the input rate divided by the largest power of two
+    that keeps it at least ``max(2.5 × the outermost filter edge, 4 × the
+    audio top)`` — room for the transition band and for the envelope's
+    harmonics. The prototype's passband edge is the passband half-width and
+    its stopband edge lies one transition further out.
+
+    Raises
+    ------
+    ParameterError
+        If the channel's filter reaches beyond the capture band, the capture
+        is too slow for the channel, or the engine is unknown.
+    """
+    if engine not in ("fft", "polyphase"):
+        raise ParameterError(f"engine: got {engine!r}; it must be 'fft' or 'polyphase'")
+    offset = channel.carrier_offset(center_hz)
+    lo, hi = channel.passband_hz
+    t = channel.transition
+    low_edge, high_edge = offset + lo - t, offset + hi + t
+    nyquist = rate_hz / 2
+    band_lo = 0.0 if real_input else -nyquist
+    where = _channel_where(channel, center_hz)
+    if low_edge < band_lo or high_edge > nyquist:
+        span = (f"{_fmt(center_hz + band_lo)}..{_fmt(center_hz + nyquist)}" if center_hz is not None
+                else f"offsets {_fmt(band_lo)}..{_fmt(nyquist)}")
+        raise ParameterError(
+            f"channel {where}: its filter ({_fmt_rel(low_edge, center_hz)}..{_fmt_rel(high_edge, center_hz)}) "
+            f"reaches outside the capture band ({span})"
+        )
+    edge = max(abs(lo - t), abs(hi + t))
+    min_rate = max(2.5 * edge, 4 * channel.audio_top_hz)
+    if min_rate > rate_hz:
+        raise ParameterError(
+            f"channel {where}: needs a capture rate of at least {min_rate:g} samples/s, the capture has {rate_hz:g}"
+        )
+    decimation = power_of_two_decimation(rate_hz, min_rate)
+    ch_rate = rate_hz / decimation
+    half = 0.5 * (hi - lo)
+    prototype = plan = None
+    fft_size = hop = None
+    if engine == "fft":
+        prototype = design_lowpass(rate_hz, half, half + t, ripple_db, atten_db)
+        history = int(math.ceil((prototype.num_taps - 1) / decimation)) * decimation
+        fft_size = choose_fft_size(history, decimation)
+        hop = ((fft_size - history) // decimation) * decimation
+    else:
+        plan = plan_decimation(rate_hz, half, half + t, decimation, ripple_db, atten_db)
+    audio_top = channel.audio_top_hz
+    audio_rate = channel.audio_rate_hz
+    if audio_top >= 0.5 * min(ch_rate, audio_rate):
+        raise ParameterError(
+            f"channel {where}: audio up to {audio_top:g} Hz does not fit an audio rate of {audio_rate:g} samples/s"
+        )
+    res_pass = audio_top
+    res_stop = min(ch_rate, audio_rate) / 2
+    # the audio resampler gets a tighter ripple than the channel filter: with 0.1 dB peak-to-peak an
+    # equiripple design alone would limit the message SNR to about 45 dB
+    resampler = design_resampler(ch_rate, audio_rate, res_pass, min(ripple_db, 0.01), atten_db, stopband_hz=res_stop)
+    return ChannelDesign(
+        rate_hz=rate_hz,
+        carrier_offset_hz=offset,
+        channel=channel,
+        decimation=decimation,
+        channel_rate_hz=ch_rate,
+        prototype=prototype,
+        engine=engine,
+        resampler=resampler,
+        ripple_db=ripple_db,
+        atten_db=atten_db,
+        real_input=real_input,
+        polyphase_plan=plan,
+        fft_size=fft_size,
+        fft_hop=hop,
+    )
+
+
+def _fmt(hz: float) -> str:
+    from .units import format_hz
+
+    return format_hz(hz)
+
+
+def _fmt_rel(offset: float, center: float | None) -> str:
+    return _fmt(offset if center is None else center + offset)
+
+
+def _channel_where(channel: Channel, center_hz: float | None) -> str:
+    freq = channel.absolute_frequency(center_hz)
+    at = _fmt(freq) if freq is not None else f"offset {_fmt(channel.carrier_offset(center_hz))}"
+    return f"'{channel.name}' at {at}"
+
+
+# ----------------------------------------------------------------------------------------------
+# Front ends (wideband → channel baseband, carrier at 0 Hz)
+# ----------------------------------------------------------------------------------------------
+class _PolyphaseFrontEnd:
+    """Translating FIR decimator + FIR decimation stages + a mixer putting the carrier at 0 Hz."""
+
+    def __init__(self, design: ChannelDesign) -> None:
+        fs = design.rate_hz
+        stages = []
+        for stage in design.polyphase_plan.stages:
+            gain = 2.0 if (stage.index == 0 and design.real_input) else 1.0
+            translate = design.filter_centre_hz if stage.index == 0 else None
+            stages.append(FirDecimator(stage.lowpass.taps * gain, stage.down, stage.rate_in_hz, translate_hz=translate))
+        self.stages = stages
+        lo, hi = design.channel.passband_hz
+        # after translation the carrier sits at -(lo + hi)/2; mix it to 0
+        self.mixer = Mixer(design.channel_rate_hz, -0.5 * (lo + hi))
+        self.delay_s = design.front_end_delay_s()
+        # the translating stage mixed by the passband centre before its delay; moving the carrier to 0 Hz
+        # afterwards must refer to the same (delayed) time, else a one-sided channel gets a constant phase
+        self.rotation = np.complex64(np.exp(-2j * np.pi * 0.5 * (lo + hi) * self.delay_s))
+        self.rate_hz = fs
+
+    def process(self, block: np.ndarray) -> np.ndarray:
+        for stage in self.stages:
+            block = stage.process(block)
+        return self.mixer.process(block) * self.rotation
+
+    def flush(self) -> np.ndarray:
+        out = np.zeros(0, np.complex64)
+        for i, stage in enumerate(self.stages):
+            held = stage.flush()
+            for later in self.stages[i + 1 :]:
+                held = later.process(held)
+            out = np.concatenate([out, held]) if held.size else out
+        return self.mixer.process(out) * self.rotation if out.size else out
+
+    def reset(self) -> None:
+        for stage in self.stages:
+            stage.reset()
+        self.mixer.reset()
+
+
+class _FftFrontEnd:
+    """A one-channel fast-convolution bank plus the fine mixer for the residual carrier offset."""
+
+    def __init__(self, design: ChannelDesign, workers: int = 1) -> None:
+        self.bank = FastConvChannelizer(
+            design.rate_hz,
+            [bank_channel(design)],
+            real_input=design.real_input,
+            fft_size=design.fft_size,
+            workers=workers,
+        )
+        self.mixer = Mixer(design.channel_rate_hz, self.bank.residual_hz(0))
+        self.delay_s = design.front_end_delay_s()
+
+    def process(self, block: np.ndarray) -> np.ndarray:
+        return self.mixer.process(self.bank.process(block)[0])
+
+    def flush(self) -> np.ndarray:
+        return self.mixer.process(self.bank.flush()[0])
+
+    def reset(self) -> None:
+        self.bank.reset()
+        self.mixer.reset()
+
+
+def bank_channel(design: ChannelDesign) -> BankChannel:
+    """The filter-bank entry for a designed channel."""
+    return BankChannel(design.carrier_offset_hz, design.channel.passband_hz, design.prototype.taps, design.decimation)
+
+
+# ----------------------------------------------------------------------------------------------
+# Back end (channel baseband → audio)
+# ----------------------------------------------------------------------------------------------
+class ChannelBackEnd:
+    """Detector, audio post-processing and resampling for one channel, with delay compensation.
+
+    Parameters
+    ----------
+    design : ChannelDesign
+        The designed chain.
+    front_delay_s : float
+        Delay of the front end feeding this back end (s).
+    agc : bool or None
+        Automatic gain control; None = on for suppressed-carrier modes
+        (usb, lsb, dsb), off for AM with carrier (normalised by the carrier).
+    detector_options : dict
+        Passed to :func:`iqsift.dsp.detectors.make_detector`.
+    """
+
+    def __init__(
+        self,
+        design: ChannelDesign,
+        front_delay_s: float,
+        *,
+        agc: bool | None = None,
+        detector_options: dict | None = None,
+        taps: dict | None = None,
+    ) -> None:
+        ch = design.channel
+        rate = design.channel_rate_hz
+        self.design = design
+        options = dict(detector_options or {})
+        if ch.mode in ("usb", "lsb"):
+            # the front end's one-sided channel filter already rejects the opposite sideband (>= atten_db)
+            options.setdefault("sideband_filter", False)
+        self.detector = make_detector(ch.mode, rate, **options)
+        self.post: list[Any] = []
+        if ch.mode in AM_MODES:
+            self.post.append(CarrierNormaliser(rate))
+        if agc is None:
+            agc = ch.mode not in AM_MODES
+        self.agc = bool(agc)
+        if self.agc:
+            self.post.append(AGC(rate, target_dbfs=-6.0, attack_s=0.02, decay_s=1.0, max_gain_db=60.0))
+        band = ch.audio_band
+        if band:
+            self.post.append(AudioBandpass(rate, band[0], band[1]))
+        elif ch.mode not in AM_MODES:
+            # broadcast-width SSB/DSB: remove DC with linear phase (AM modes lose it in the normaliser)
+            self.post.insert(0, CarrierNormaliser(rate, normalise=False))
+        r = design.resampler
+        self.resampler = RationalResampler(r.taps, r.up, r.down, rate)
+        self.audio_rate_hz = r.rate_out_hz
+        delay_s = front_delay_s + self.detector.delay / rate
+        delay_s += sum(stage.delay for stage in self.post) / rate
+        delay_s += self.resampler.delay / self.audio_rate_hz
+        # a windowed-sinc fractional delay tops the chain's delay up to a whole number of audio samples,
+        # so audio sample k belongs exactly to input time k / audio rate
+        half = 16
+        fa = self.audio_rate_hz
+        whole = math.ceil((delay_s + half / rate) * fa - 1e-9)
+        extra = max(float(half), (whole / fa - delay_s) * rate)  # channel samples, >= half
+        self.post.append(FractionalDelay(rate, extra, half_length=half))
+        delay_s += extra / rate
+        self.delay_s = delay_s
+        self.trim_samples = int(round(delay_s * self.audio_rate_hz))
+        self.residual_delay_s = delay_s - self.trim_samples / self.audio_rate_hz
+        self._trim = DelayTrim(self.trim_samples)
+        self.taps = taps or {}
+        self.on_baseband = None  # optional callable receiving each channel baseband block (e.g. a SigMF writer)
+        self.reset_levels()
+
+    def reset_levels(self) -> None:
+        self._detector_out = 0
+        self._real_total = None
+        self.power_sum = 0.0
+        self.peak_power = 0.0
+        self.baseband_samples = 0
+
+    def _valid(self, count: int) -> np.ndarray:
+        """Which of the next ``count`` detector outputs stem from real input (not start-up or padding)."""
+        idx = self._detector_out + np.arange(count)
+        lag = int(round(self.detector.delay))
+        stop = np.inf if self._real_total is None else self._real_total + lag
+        self._detector_out += count
+        return (idx >= lag) & (idx < stop)
+
+    def _post(self, d: np.ndarray, final: bool) -> np.ndarray:
+        tap = self.taps.get("detector")
+        if tap is not None and d.size:
+            tap.feed(d)
+        valid = self._valid(d.size)
+        for i, stage in enumerate(self.post):
+            if isinstance(stage, CarrierNormaliser):
+                d = stage.process(d, valid)
+            else:
+                d = stage.process(d)
+            if final:
+                held = stage.flush()
+                if held.size:
+                    for later in self.post[i + 1 :]:
+                        held = later.process(held)
+                    d = np.concatenate([d, held])
+        audio = self.resampler.process(np.asarray(d, dtype=np.float32))
+        return self._trim.process(audio)
+
+    def process(self, baseband: np.ndarray, count_level: bool = True) -> np.ndarray:
+        """Channel baseband (carrier at 0 Hz) in, audio out (float32, delay-compensated).
+
+        ``count_level=False`` marks padding pushed in at the end (not signal): it is excluded from
+        the level measurement and from the carrier-level estimate.
+        """
+        if not count_level and self._real_total is None:
+            self._real_total = self.baseband_samples
+        if count_level and baseband.size:
+            p = baseband.real.astype(np.float64) ** 2 + baseband.imag.astype(np.float64) ** 2
+            self.power_sum += float(p.sum())
+            self.peak_power = max(self.peak_power, float(p.max()))
+            self.baseband_samples += baseband.size
+        tap = self.taps.get("channel")
+        if tap is not None and baseband.size and count_level:
+            tap.feed(baseband)
+        if self.on_baseband is not None and baseband.size and count_level:
+            self.on_baseband(baseband)
+        return self._post(self.detector.process(baseband), final=False)
+
+    def flush(self) -> np.ndarray:
+        """Release what the detector and post stages hold."""
+        d = self.detector.flush()
+        return self._post(d, final=True)
+
+    @property
+    def level_dbfs(self) -> float | None:
+        """Mean power of the channel baseband (dBFS)."""
+        if not self.baseband_samples or self.power_sum <= 0:
+            return None
+        return 10 * math.log10(self.power_sum / self.baseband_samples)
+
+    @property
+    def peak_dbfs(self) -> float | None:
+        return 10 * math.log10(self.peak_power) if self.peak_power > 0 else None
+
+
+# ----------------------------------------------------------------------------------------------
+# Receiver
+# ----------------------------------------------------------------------------------------------
+@dataclass
+class ReceiverResult:
+    """Audio and report of a finished run."""
+
+    audio: np.ndarray
+    audio_rate_hz: float
+    report: dict[str, Any]
+    spectra: dict[str, Any] = field(default_factory=dict)
+
+
+class Receiver:
+    """One channel of a capture, streamed block by block.
+
+    Parameters
+    ----------
+    rate_hz : float
+        Input sample rate (samples/s).
+    channel : Channel
+        What to receive.
+    center_hz : float, optional
+        Capture centre frequency (Hz); needed when the channel is given by
+        absolute frequency.
+    real_input : bool
+        The input is a real signal (real IF).
+    engine : {"fft", "polyphase"}
+        Front end (see module docstring).
+    ripple_db, atten_db : float
+        Channel filter specification (passband ripple peak-to-peak, stopband attenuation).
+    agc : bool or None
+        See :class:`ChannelBackEnd`.
+    spectra : bool or sequence of str
+        Accumulate spectra at these tap points (``True`` = all of :data:`TAP_NAMES`).
+    detector_options : dict, optional
+        Passed to the detector.
+
+    Examples
+    --------
+    >>> from iqsift import Receiver, make_channel, open_capture          # doctest: +SKIP
+    >>> capture = open_capture("sample_captures/vhf_airband.sigmf-meta")
+    >>> rx = Receiver.for_capture(capture, make_channel(freq="127.35M", emission="6K00A3E"))
+    >>> result = rx.run(capture)
+    >>> result.audio.shape, result.report["channel"]["level_dbfs"]
+    """
+
+    def __init__(
+        self,
+        rate_hz: float,
+        channel: Channel,
+        *,
+        center_hz: float | None = None,
+        real_input: bool = False,
+        engine: str = "fft",
+        ripple_db: float = 0.1,
+        atten_db: float = 80.0,
+        agc: bool | None = None,
+        spectra: bool | tuple[str, ...] = False,
+        detector_options: dict | None = None,
+        workers: int = 1,
+    ) -> None:
+        self.rate_hz = float(rate_hz)
+        self.center_hz = center_hz
+        self.channel = channel
+        self.design = design_channel(
+            rate_hz, channel, center_hz=center_hz, real_input=real_input, engine=engine,
+            ripple_db=ripple_db, atten_db=atten_db,
+        )
+        self.front = _FftFrontEnd(self.design, workers) if engine == "fft" else _PolyphaseFrontEnd(self.design)
+        self.taps = self._make_taps(spectra)
+        self.back = ChannelBackEnd(self.design, self.front.delay_s, agc=agc, detector_options=detector_options,
+                                   taps=self.taps)
+        self.audio_rate_hz = self.back.audio_rate_hz
+        self.samples_in = 0
+        self.audio_out = 0
+
+    @classmethod
+    def for_capture(cls, capture, channel: Channel, selection=None, **options: Any) -> "Receiver":
+        """A receiver matching a capture's rate, centre (over ``selection``) and kind."""
+        return cls(capture.sample_rate_hz, channel, center_hz=capture.center_for(selection),
+                   real_input=not capture.is_complex, **options)
+
+    def _make_taps(self, spectra) -> dict[str, Any]:
+        if not spectra:
+            return {}
+        from .spectra import WelchAccumulator
+
+        names = TAP_NAMES if spectra is True else tuple(spectra)
+        unknown = [n for n in names if n not in TAP_NAMES]
+        if unknown:
+            raise ParameterError(f"spectra: unknown tap point(s) {unknown}; tap points are {', '.join(TAP_NAMES)}")
+        d = self.design
+        centre = self.center_hz or 0.0
+        taps: dict[str, Any] = {}
+        ch_rate = d.channel_rate_hz
+        # about 2.5 Hz resolution at the channel, 0.3 kHz at the input (common practice for voice channels)
+        seg_ch = 1 << max(8, int(round(math.log2(ch_rate / 4))))
+        if "input" in names:
+            seg_in = 1 << max(10, min(16, int(round(math.log2(self.rate_hz / 300)))))
+            taps["input"] = WelchAccumulator(self.rate_hz, nperseg=seg_in, center_hz=centre, name="input",
+                                             onesided=d.real_input)
+        if "channel" in names:
+            taps["channel"] = WelchAccumulator(ch_rate, nperseg=seg_ch, name="channel")
+        if "detector" in names:
+            taps["detector"] = WelchAccumulator(ch_rate, nperseg=seg_ch, name="detector", onesided=True)
+        if "audio" in names:
+            seg_a = 1 << max(8, int(round(math.log2(d.resampler.rate_out_hz / 4))))
+            taps["audio"] = WelchAccumulator(d.resampler.rate_out_hz, nperseg=seg_a, name="audio", onesided=True)
+        return taps
+
+    # -- streaming -----------------------------------------------------
+    def process(self, block: np.ndarray) -> np.ndarray:
+        """Feed IQ samples (complex64, or real for a real capture); returns new audio (float32)."""
+        block = np.asarray(block)
+        self.samples_in += block.shape[0]
+        tap = self.taps.get("input")
+        if tap is not None and block.size:
+            tap.feed(block)
+        audio = self.back.process(self.front.process(block))
+        return self._emit(audio)
+
+    def _fade(self, audio: np.ndarray, at_end: bool) -> np.ndarray:
+        """Raised-cosine fade over the first and last EDGE_FADE_S of the stream.
+
+        A stream starts and stops abruptly; the audio filters ring on those steps (Gibbs overshoot
+        up to ~30 % of full scale). The fades confine the edits to 5 ms at each end.
+        """
+        n_fade = int(round(EDGE_FADE_S * self.audio_rate_hz))
+        audio = np.array(audio, dtype=np.float32, copy=True)
+        head = n_fade - self.audio_out
+        if head > 0 and audio.size:
+            k = np.arange(self.audio_out, self.audio_out + min(head, audio.size))
+            audio[: k.size] *= (0.5 - 0.5 * np.cos(np.pi * (k + 0.5) / n_fade)).astype(np.float32)
+        if at_end and audio.size:
+            m = min(n_fade, audio.size)
+            k = np.arange(m)[::-1]
+            audio[-m:] *= (0.5 - 0.5 * np.cos(np.pi * (k + 0.5) / n_fade)).astype(np.float32)
+        return audio
+
+    def _emit(self, audio: np.ndarray, at_end: bool = False) -> np.ndarray:
+        audio = self._fade(audio, at_end)
+        tap = self.taps.get("audio")
+        if tap is not None and audio.size:
+            tap.feed(audio)
+        self.audio_out += audio.size
+        return audio
+
+    def flush(self) -> np.ndarray:
+        """Finish: push the delayed tail out; total audio = round(samples_in · audio_rate / fs)."""
+        expected = int(round(self.samples_in * self.audio_rate_hz / self.rate_hz))
+        pad = int(math.ceil(self.back.delay_s * self.rate_hz)) + 4 * self.design.decimation
+        # baseband samples that still belong to the input (the front end emits ceil(n / D) of them)
+        real_left = -(-self.samples_in // self.design.decimation) - self.back.baseband_samples
+        tail = self.front.process(np.zeros(pad, np.complex64))
+        real_left = max(0, min(real_left, tail.size))
+        pieces = [self.back.process(tail[:real_left]), self.back.process(tail[real_left:], count_level=False)]
+        pieces.append(self.back.process(self.front.flush(), count_level=False))
+        pieces.append(self.back.flush())
+        audio = np.concatenate(pieces).astype(np.float32)
+        need = expected - self.audio_out
+        if need < 0:
+            need = 0
+        if audio.size < need:
+            audio = np.concatenate([audio, np.zeros(need - audio.size, np.float32)])
+        return self._emit(audio[:need], at_end=True)
+
+    def stream(self, blocks) -> Iterator[np.ndarray]:
+        """Run over an iterable of IQ blocks, yielding audio blocks; flushes at the end."""
+        for block in blocks:
+            out = self.process(block)
+            if out.size:
+                yield out
+        tail = self.flush()
+        if tail.size:
+            yield tail
+
+    def run(self, capture=None, samples: np.ndarray | None = None, *, selection=None,
+            nonfinite: str = "error", block_size: int | None = None) -> ReceiverResult:
+        """Run to completion over a capture (or an array) and return the audio and the report."""
+        if samples is not None:
+            blocks = [np.asarray(samples)]
+        else:
+            kwargs = {"nonfinite": nonfinite}
+            if selection is not None:
+                kwargs.update(start=selection.start, count=selection.count)
+            if block_size:
+                kwargs["block_size"] = block_size
+            blocks = capture.blocks(**kwargs)
+        audio = list(self.stream(blocks))
+        audio = np.concatenate(audio) if audio else np.zeros(0, np.float32)
+        return ReceiverResult(audio, self.audio_rate_hz, self.report(), self.spectra())
+
+    # -- results -------------------------------------------------------
+    def spectra(self, scaling: str = "density") -> dict[str, Any]:
+        """Accumulated spectra per tap point (``Spectrum`` objects), for those with data."""
+        return {name: acc.result(scaling) for name, acc in self.taps.items() if acc.ready}
+
+    def report(self) -> dict[str, Any]:
+        """The run's report: channel, design, measured level, delay."""
+        ch = self.channel.as_dict(self.center_hz)
+        ch["level_dbfs"] = self.back.level_dbfs
+        ch["peak_dbfs"] = self.back.peak_dbfs
+        det = self.back.detector
+        detector: dict[str, Any] = {"mode": self.channel.mode}
+        track = getattr(det, "carrier_offset_hz", None)
+        if track is not None:
+            detector["carrier_offset_hz"] = track
+        return {
+            "channel": ch,
+            "design": self.design.as_dict(self.center_hz),
+            "detector": detector,
+            "agc": self.back.agc,
+            "delay": {
+                "compensated_s": self.back.trim_samples / self.audio_rate_hz,
+                "chain_s": self.back.delay_s,
+                "residual_s": self.back.residual_delay_s,
+            },
+            "input_samples": self.samples_in,
+            "audio_samples": self.audio_out,
+            "audio_rate_hz": self.audio_rate_hz,
+        }
