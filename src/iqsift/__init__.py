@@ -1,3 +1,49 @@
-"""iqsift: pull AM-family voice channels out of recorded IQ and real IF captures."""
+"""iqsift: pull AM-family voice channels out of recorded IQ and real IF captures.
+
+The public API, for scripts and test benches::
+
+    from iqsift import open_capture, make_channel, Receiver
+
+    capture = open_capture("sample_captures/vhf_airband.sigmf-meta")
+    channel = make_channel(freq="127.35M", emission="6K00A3E")
+    result = Receiver.for_capture(capture, channel, spectra=True).run(capture)
+    result.audio, result.report, result.spectra
+"""
 
 __version__ = "0.1.0"
+
+from .captures import Capture, SigMFWriter, AudioWriter, open_capture  # noqa: E402
+from .channel import Channel, make_channel  # noqa: E402
+from .emission import Emission, parse_emission  # noqa: E402
+from .errors import (  # noqa: E402
+    CaptureError,
+    InputError,
+    IqsiftError,
+    IqsiftWarning,
+    OutputExistsError,
+    ParameterError,
+)
+from .receiver import Receiver, ReceiverResult, design_channel  # noqa: E402
+from .units import parse_frequency  # noqa: E402
+
+__all__ = [
+    "AudioWriter",
+    "Capture",
+    "CaptureError",
+    "Channel",
+    "Emission",
+    "InputError",
+    "IqsiftError",
+    "IqsiftWarning",
+    "OutputExistsError",
+    "ParameterError",
+    "Receiver",
+    "ReceiverResult",
+    "SigMFWriter",
+    "__version__",
+    "design_channel",
+    "make_channel",
+    "open_capture",
+    "parse_emission",
+    "parse_frequency",
+]
