@@ -450,6 +450,7 @@ class ChannelBackEnd:
         self._trim = DelayTrim(self.trim_samples)
         self.taps = taps or {}
         self.on_baseband = None  # optional callable receiving each channel baseband block (e.g. a SigMF writer)
+        self.analyzer = None  # optional iqsift.analysis.ChannelAnalyzer
         self.reset_levels()
 
     def reset_levels(self) -> None:
@@ -504,6 +505,8 @@ class ChannelBackEnd:
             tap.feed(baseband)
         if self.on_baseband is not None and baseband.size and count_level:
             self.on_baseband(baseband)
+        if self.analyzer is not None and baseband.size and count_level:
+            self.analyzer.feed_baseband(baseband)
         return self._post(self.detector.process(baseband), final=False)
 
     def flush(self) -> np.ndarray:
@@ -663,8 +666,27 @@ class Receiver:
             audio[-m:] *= (0.5 - 0.5 * np.cos(np.pi * (k + 0.5) / n_fade)).astype(np.float32)
         return audio
 
+    def analyze(self, **options: Any) -> "Receiver":
+        """Measure the channel while it runs (see :class:`iqsift.analysis.ChannelAnalyzer` for options).
+
+        The report then carries the ``carrier``, ``modulation``, ``bandwidth``, ``audio`` and
+        ``activity`` sections. Returns the receiver, for chaining.
+        """
+        from .analysis import ChannelAnalyzer
+
+        nominal = self.channel.absolute_frequency(self.center_hz)
+        if nominal is None:
+            nominal = self.design.carrier_offset_hz
+        self.back.analyzer = ChannelAnalyzer(
+            self.design.channel_rate_hz, self.audio_rate_hz, self.channel.mode, self.channel.bandwidth_hz,
+            nominal, passband_hz=self.channel.passband_hz, **options,
+        )
+        return self
+
     def _emit(self, audio: np.ndarray, at_end: bool = False) -> np.ndarray:
         audio = self._fade(audio, at_end)
+        if self.back.analyzer is not None and audio.size:
+            self.back.analyzer.feed_audio(audio)
         tap = self.taps.get("audio")
         if tap is not None and audio.size:
             tap.feed(audio)
@@ -731,7 +753,7 @@ class Receiver:
         track = getattr(det, "carrier_offset_hz", None)
         if track is not None:
             detector["carrier_offset_hz"] = track
-        return {
+        report = {
             "channel": ch,
             "design": self.design.as_dict(self.center_hz),
             "detector": detector,
@@ -745,3 +767,6 @@ class Receiver:
             "audio_samples": self.audio_out,
             "audio_rate_hz": self.audio_rate_hz,
         }
+        if self.back.analyzer is not None:
+            report.update(self.back.analyzer.result())
+        return report

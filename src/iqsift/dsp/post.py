@@ -31,6 +31,11 @@ class CarrierNormaliser:
     floor : float
         Smallest carrier level divided by (full scale = 1), so silence does
         not blow up.
+    max_gain_db : float
+        The divisor never falls below the strongest level seen so far minus
+        this many dB: when the carrier goes away (push-to-talk off, deep
+        fade) the noise is not amplified to full scale, like an AM receiver's
+        AGC at its gain limit.
     normalise : bool
         Divide by the level (AM with carrier). Without it the stage is a
         linear-phase DC remover ``d − LPF(d)``: unlike a one-pole DC blocker
@@ -52,6 +57,7 @@ class CarrierNormaliser:
         atten_db: float = 60.0,
         floor: float = 1e-6,
         normalise: bool = True,
+        max_gain_db: float = 30.0,
     ) -> None:
         stop_hz = min(stop_hz, 0.45 * rate_hz)
         pass_hz = min(pass_hz, 0.5 * stop_hz)
@@ -61,6 +67,7 @@ class CarrierNormaliser:
         self.rate_hz = float(rate_hz)
         self.floor = float(floor)
         self.normalise = bool(normalise)
+        self.max_gain = 10 ** (-max_gain_db / 20)
         self.reset()
 
     @property
@@ -81,6 +88,7 @@ class CarrierNormaliser:
         self._cover = FirFilter(self.design.taps, self.rate_hz)
         self._history = np.zeros(self._lag, np.float64)
         self.last_level = None
+        self._strongest = 0.0
 
     def process(self, block: np.ndarray, valid: np.ndarray | None = None) -> np.ndarray:
         """Process a block; ``valid`` marks the samples that carry signal (default: all).
@@ -102,7 +110,10 @@ class CarrierNormaliser:
         self.last_level = float(level[-1])
         out = delayed - level
         if self.normalise:
-            out /= np.maximum(np.abs(level), self.floor)
+            running = np.maximum.accumulate(np.abs(level))
+            running = np.maximum(running, self._strongest)
+            self._strongest = float(running[-1])
+            out /= np.maximum(np.abs(level), np.maximum(running * self.max_gain, self.floor))
         return out.astype(np.float32)
 
     def flush(self) -> np.ndarray:

@@ -1,0 +1,289 @@
+"""Modulation analysis of one channel while it streams through a receiver.
+
+A :class:`ChannelAnalyzer` sits on a receiver's channel baseband (carrier at
+0 Hz, channel rate) and on its audio, and in the same pass accumulates what
+:mod:`iqsift.measure` needs:
+
+* carrier frequency and level — :class:`~iqsift.measure.CarrierAccumulator`
+  (phase-slope fit, far finer than a bin), AM modes only;
+* modulation depth — :func:`~iqsift.measure.measure_depth` on the envelope in
+  windows of ``window_s``; the reported depth is the median over the steady
+  windows — those inside one activity segment whose level is within 1 dB of
+  the 90th percentile of window levels, so pauses, off periods and windows
+  straddling a burst edge do not count — with the spread reported alongside;
+* occupied and x-dB bandwidth (ITU-R SM.328) — from a Welch spectrum of the
+  channel baseband (so never wider than the channel filter);
+* audio quality with a test tone (IEEE Std 1241 SNR/SINAD/THD, receiver SINAD)
+  — :func:`~iqsift.measure.audio_quality` on the audio in windows (steady ones,
+  as for depth), median;
+* activity — :class:`~iqsift.measure.ActivityTracker` (10 ms frame levels).
+
+Memory is bounded: one analysis window of samples, the spectra, and a few
+numbers per frame or segment.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+import numpy as np
+
+from . import measure
+from .spectra import WelchAccumulator
+
+__all__ = ["ChannelAnalyzer"]
+
+AM_MODES = ("envelope", "coherent")
+
+
+class ChannelAnalyzer:
+    """Accumulate the measurements of one channel.
+
+    Parameters
+    ----------
+    channel_rate_hz : float
+        Rate of the channel baseband (samples/s).
+    audio_rate_hz : float
+        Rate of the audio (samples/s).
+    mode : str
+        The channel's detector mode (carrier and depth only for AM with carrier).
+    bandwidth_hz : float
+        The channel's stated bandwidth (Hz); bounds the carrier search.
+    nominal_hz : float or None
+        Absolute nominal carrier frequency (Hz), or the offset when the capture
+        centre is unknown; the carrier is reported on the same axis.
+    tone_hz : float or None
+        Test-tone frequency for the audio quality figures (None: not measured).
+    weighting : {"none", "psophometric", "a"}
+        Noise weighting of the audio figures (ITU-T O.41, IEC 61672-1).
+    x_db : float
+        x of the x-dB bandwidth (default 26 dB, ITU-R SM.328).
+    window_s : float
+        Analysis window for depth and audio quality (s).
+    activity : dict
+        Options of :func:`~iqsift.measure.detect_activity` (threshold_db, hysteresis_db, min_hold_s,
+        noise_floor_db ...). Without ``noise_floor_db`` the floor is the lower of the frame-level
+        percentile and the spectral estimate (:meth:`noise_floor_dbfs`).
+    passband_hz : tuple, optional
+        The channel's passband relative to the carrier (Hz), for the spectral noise-floor estimate.
+    """
+
+    def __init__(
+        self,
+        channel_rate_hz: float,
+        audio_rate_hz: float,
+        mode: str,
+        bandwidth_hz: float,
+        nominal_hz: float | None = 0.0,
+        *,
+        tone_hz: float | None = None,
+        weighting: str = "none",
+        x_db: float = 26.0,
+        window_s: float = 0.5,
+        activity: dict | None = None,
+        passband_hz: tuple[float, float] | None = None,
+    ) -> None:
+        self.rate = float(channel_rate_hz)
+        self.audio_rate = float(audio_rate_hz)
+        self.mode = mode
+        self.nominal_hz = nominal_hz
+        self.tone_hz = tone_hz
+        self.weighting = weighting
+        self.x_db = float(x_db)
+        self.is_am = mode in AM_MODES
+        search = min(0.45 * self.rate, max(0.5 * bandwidth_hz, 2500.0))
+        self.carrier = measure.CarrierAccumulator(self.rate, 0.0, search_hz=search) if self.is_am else None
+        nperseg = 1 << max(8, int(round(math.log2(self.rate / 8))))  # ~8 Hz bins
+        self.spectrum = WelchAccumulator(self.rate, nperseg=nperseg, window="hann", name="channel")
+        self._activity_options = dict(activity or {})
+        self.activity = measure.ActivityTracker(self.rate, 0.01, **self._activity_options)
+        self.passband_hz = passband_hz if passband_hz is not None else (-bandwidth_hz / 2, bandwidth_hz / 2)
+        self.noise_floor_used_dbfs = None
+        self._win = max(1, int(round(window_s * self.rate)))
+        self._awin = max(1, int(round(window_s * self.audio_rate)))
+        self._audio_levels: list[float] = []
+        self._env: list[np.ndarray] = []
+        self._env_n = 0
+        self._env_t = 0
+        self._depths: list[tuple[float, Any]] = []
+        self._aud: list[np.ndarray] = []
+        self._aud_n = 0
+        self._aud_t = 0
+        self._quality: list[Any] = []
+
+    # -- feeding -------------------------------------------------------
+    def feed_baseband(self, z: np.ndarray) -> None:
+        """Channel baseband block (complex, carrier at 0 Hz)."""
+        if z.size == 0:
+            return
+        if self.carrier is not None:
+            self.carrier.feed(z)
+        self.spectrum.feed(z)
+        self.activity.feed(z)
+        if self.is_am:
+            self._env.append(np.abs(z).astype(np.float64))
+            self._env_n += z.size
+            while self._env_n >= self._win:
+                self._depth_window()
+
+    def feed_audio(self, a: np.ndarray) -> None:
+        """Audio block (float)."""
+        if self.tone_hz is None or a.size == 0:
+            return
+        self._aud.append(np.asarray(a, dtype=np.float64))
+        self._aud_n += a.size
+        while self._aud_n >= self._awin:
+            self._audio_window()
+
+    def _take(self, parts: list[np.ndarray], count: int) -> tuple[np.ndarray, list[np.ndarray]]:
+        joined = np.concatenate(parts)
+        return joined[:count], [joined[count:]] if joined.size > count else []
+
+    def _depth_window(self, final: bool = False) -> None:
+        count = self._env_n if final else self._win
+        window, self._env = self._take(self._env, count)
+        self._env_n -= window.size
+        self._env_t += window.size
+        if window.size < max(64, int(0.8 * self._win)):
+            return
+        level = float(np.mean(window**2))
+        try:
+            result = measure.measure_depth(window, self.rate)
+        except Exception:  # a window without modulation or carrier: no depth from it
+            return
+        t1 = self._env_t / self.rate
+        self._depths.append((t1 - window.size / self.rate, t1, level, result))
+
+    def _audio_window(self, final: bool = False) -> None:
+        count = self._aud_n if final else self._awin
+        window, self._aud = self._take(self._aud, count)
+        self._aud_n -= window.size
+        self._aud_t += window.size
+        if window.size < int(0.8 * self._awin):
+            return
+        try:
+            quality = measure.audio_quality(window, self.audio_rate, tone_hz=self.tone_hz, weighting=self.weighting)
+        except Exception:
+            return
+        t1 = self._aud_t / self.audio_rate
+        self._quality.append((t1 - window.size / self.audio_rate, t1, float(np.mean(window**2)), quality))
+
+    # -- results -------------------------------------------------------
+    def result(self) -> dict[str, Any]:
+        """Report sections: carrier, modulation, bandwidth, audio, activity (DESIGN.md vocabulary)."""
+        if self._env_n:
+            self._depth_window(final=True)
+        if self._aud_n:
+            self._audio_window(final=True)
+        out: dict[str, Any] = {}
+        segments = self._activity_segments()
+        self._segments = [(seg.start_s, seg.end_s) for seg in segments]
+        out["carrier"] = self._carrier_section()
+        out["modulation"] = self._modulation_section()
+        out["bandwidth"] = self._bandwidth_section()
+        out["audio"] = self._audio_section()
+        out["activity"] = [seg.to_dict() for seg in segments]
+        out["noise_floor_dbfs"] = self.noise_floor_used_dbfs
+        return out
+
+    def noise_floor_dbfs(self) -> float | None:
+        """Noise power in the channel (dBFS), from the 10th percentile of the baseband PSD over the passband.
+
+        Most of an AM voice channel's passband holds noise most of the time (the carrier is one line,
+        speech energy is concentrated), so a low percentile of the averaged density times the passband
+        width estimates the noise even when the channel is busy the whole time (common practice).
+        """
+        if not self.spectrum.ready:
+            return None
+        spec = self.spectrum.result("density")
+        f = np.asarray(spec.relative_freqs_hz if hasattr(spec, "relative_freqs_hz") else spec.freqs_hz)
+        lo, hi = self.passband_hz
+        band = (f >= lo) & (f <= hi)
+        if band.sum() < 8:
+            return None
+        density = 10 ** (np.asarray(spec.values_db)[band] / 10)
+        return float(10 * np.log10(np.percentile(density, 10) * (hi - lo)))
+
+    def _activity_segments(self) -> list[Any]:
+        levels = self.activity.levels_db
+        if levels.size == 0:
+            return []
+        options = dict(self._activity_options)
+        if options.get("noise_floor_db") is None:
+            spectral = self.noise_floor_dbfs()
+            framewise = float(np.percentile(levels, options.get("floor_percentile", 10.0)))
+            options["noise_floor_db"] = framewise if spectral is None else min(spectral, framewise)
+        self.noise_floor_used_dbfs = options["noise_floor_db"]
+        return measure.detect_activity(levels, self.activity.frame_s, **options)
+
+    def _carrier_section(self) -> dict[str, Any] | None:
+        if self.carrier is None:
+            return None
+        try:
+            c = self.carrier.result()
+        except Exception:
+            return None
+        d = c.to_dict()
+        base = self.nominal_hz or 0.0
+        d["offset_from_tuning_hz"] = c.frequency_hz
+        d["frequency_hz"] = base + c.frequency_hz
+        d["nominal_hz"] = self.nominal_hz
+        d["error_hz"] = c.frequency_hz  # measured minus nominal: the baseband's 0 Hz is the nominal carrier
+        return d
+
+    def _modulation_section(self) -> dict[str, Any] | None:
+        if not self._depths:
+            return None
+        chosen = _steady(self._depths, self._segments)
+        depth = np.array([r.depth_percent for r in chosen])
+        pos = np.array([r.depth_positive_percent for r in chosen])
+        neg = np.array([r.depth_negative_percent for r in chosen])
+        tone = np.array([r.tone_hz for r in chosen], dtype=float)
+        return {
+            "depth_percent": float(np.median(depth)),
+            "depth_positive_percent": float(np.median(pos)),
+            "depth_negative_percent": float(np.median(neg)),
+            "tone_hz": float(np.nanmedian(tone)) if np.isfinite(tone).any() else None,
+            "depth_percent_range": [float(depth.min()), float(depth.max())],
+            "windows": len(chosen),
+            "window_s": self._win / self.rate,
+            "method": f"median over {len(chosen)} window(s) of {self._win / self.rate:g} s; {chosen[0].method}",
+        }
+
+    def _bandwidth_section(self) -> dict[str, Any] | None:
+        if not self.spectrum.ready:
+            return None
+        spec = self.spectrum.result("spectrum")
+        freqs = spec.relative_freqs_hz if hasattr(spec, "relative_freqs_hz") else spec.freqs_hz
+        psd = 10 ** (np.asarray(spec.values_db) / 10)
+        try:
+            bw = measure.measure_bandwidth(freqs, psd, 0.99, self.x_db).to_dict()
+        except Exception:
+            return None
+        bw["note"] = "measured on the channel baseband (after the channel filter), relative to the tuned carrier"
+        return bw
+
+    def _audio_section(self) -> dict[str, Any] | None:
+        if not self._quality:
+            return None
+        keys = ("snr_db", "sinad_db", "thd_percent", "thd_db", "receiver_sinad_db", "tone_hz")
+        chosen = _steady(self._quality, self._segments)
+        out: dict[str, Any] = {}
+        for key in keys:
+            values = np.array([getattr(q, key) for q in chosen], dtype=float)
+            out[key] = float(np.nanmedian(values)) if np.isfinite(values).any() else None
+        out["weighting"] = self.weighting
+        out["windows"] = len(chosen)
+        out["sinad_definition"] = "IEEE Std 1241 S/(N+D); receiver_sinad_db is (S+N+D)/(N+D)"
+        return out
+
+
+def _steady(windows: list[tuple[float, float, float, Any]], segments: list[tuple[float, float]]) -> list[Any]:
+    """Results of the steady windows: those lying inside one activity segment (10 ms margin) and, among
+    them, whose mean power is within 1 dB of the 90th percentile; all windows when no segment holds one."""
+    inside = [w for w in windows if any(a - 0.01 <= w[0] and w[1] <= b + 0.01 for a, b in segments)]
+    pool = inside or windows
+    levels = np.array([w[2] for w in pool])
+    ref = np.percentile(levels, 90)
+    return [w[3] for w in pool if w[2] >= ref * 10 ** (-0.1)]

@@ -1,0 +1,111 @@
+"""``iqsift measure``: a modulation analysis report for one channel."""
+
+from __future__ import annotations
+
+from typing import Any, Optional
+
+import typer
+
+from ..captures import open_capture
+from ..channel import make_channel
+from ..errors import ParameterError
+from ..receiver import Receiver
+from ..units import parse_positive_hz
+from .app import CenterOption, FormatOption, JsonOption, QuietOption, RateOption, StrictOption, app
+from .common import emit_json, progress_blocks
+from .demod import (
+    AudioRateOption,
+    BandwidthOption,
+    DurationOption,
+    EmissionOption,
+    FreqOption,
+    ModeOption,
+    NonfiniteOption,
+    OffsetOption,
+    StartOption,
+)
+from .info import capture_summary
+
+
+@app.command("measure")
+def measure_command(
+    capture_path: str = typer.Argument(..., metavar="CAPTURE", help="Capture file (SigMF, WAV/FLAC, or raw)."),
+    freq: Optional[str] = FreqOption,
+    offset: Optional[str] = OffsetOption,
+    bandwidth: Optional[str] = BandwidthOption,
+    emission: Optional[str] = EmissionOption,
+    mode: Optional[str] = ModeOption,
+    tone: Optional[str] = typer.Option(None, "--tone", help="Test-tone frequency in Hz for SNR/SINAD/THD."),
+    weighting: str = typer.Option("none", "--weighting", help="Audio noise weighting: none, psophometric or a."),
+    x_db: float = typer.Option(26.0, "--x-db", help="x of the x-dB bandwidth (ITU-R SM.328), dB."),
+    threshold: float = typer.Option(10.0, "--threshold", help="Activity threshold above the noise floor, dB."),
+    audio_rate: str = AudioRateOption,
+    start: Optional[str] = StartOption,
+    duration: Optional[str] = DurationOption,
+    allow_nonfinite: bool = NonfiniteOption,
+    quiet: bool = QuietOption,
+    json_out: bool = JsonOption,
+    format: Optional[str] = FormatOption,
+    rate: Optional[str] = RateOption,
+    center: Optional[str] = CenterOption,
+    strict: bool = StrictOption,
+) -> None:
+    """Measure carrier frequency error and level, modulation depth, SNR/SINAD/THD, bandwidths and activity."""
+    if weighting not in ("none", "psophometric", "a"):
+        raise ParameterError(f"--weighting: got {weighting!r}; use none, psophometric or a")
+    tone_hz = None if tone is None else parse_positive_hz(tone, "--tone")
+    channel = make_channel(freq=freq, offset=offset, bandwidth=bandwidth, emission=emission, mode=mode,
+                           audio_rate=audio_rate, name="measured")
+    with open_capture(capture_path, format=format, rate=rate, center=center, strict=strict) as capture:
+        selection = capture.select(start, duration)
+        receiver = Receiver.for_capture(capture, channel, selection, agc=False).analyze(
+            tone_hz=tone_hz, weighting=weighting, x_db=x_db, activity={"threshold_db": threshold})
+        blocks = capture.blocks(start=selection.start, count=selection.count,
+                                nonfinite="zero" if allow_nonfinite else "error")
+        for _ in receiver.stream(progress_blocks(blocks, selection.count, "measuring", quiet)):
+            pass
+        result = receiver.report()
+        result["capture"] = capture_summary(capture)
+        result["selection"] = {"start_s": selection.start / capture.sample_rate_hz,
+                               "duration_s": selection.count / capture.sample_rate_hz}
+    if json_out:
+        emit_json(result)
+    else:
+        typer.echo(format_measure(result))
+
+
+def _num(value: Any, fmt: str, unit: str = "") -> str:
+    return "-" if value is None else f"{value:{fmt}}{unit}"
+
+
+def format_measure(r: dict[str, Any]) -> str:
+    """Human rendering of a measurement report."""
+    ch = r["channel"]
+    where = ch["frequency_hz"] if ch["frequency_hz"] is not None else ch["offset_hz"]
+    lines = [f"channel        {where:.3f} Hz, {ch['bandwidth_hz']:g} Hz, {ch['mode']}; "
+             f"level {_num(ch['level_dbfs'], '.2f', ' dBFS')}"]
+    c = r.get("carrier")
+    if c:
+        lines.append(f"carrier        {c['frequency_hz']:.3f} Hz, error {c['error_hz']:+.3f} Hz "
+                     f"(measured - nominal), level {_num(c['level_dbfs'], '.2f', ' dBFS')}")
+    else:
+        lines.append("carrier        - (suppressed-carrier mode or no carrier found)")
+    m = r.get("modulation")
+    if m:
+        lines.append(f"modulation     depth {m['depth_percent']:.2f} % (+{m['depth_positive_percent']:.2f} % / "
+                     f"-{m['depth_negative_percent']:.2f} %), tone {_num(m['tone_hz'], '.2f', ' Hz')}")
+    b = r.get("bandwidth")
+    if b:
+        lines.append(f"bandwidth      occupied (99 %) {b['occupied_hz']:.1f} Hz, {b['x_db']:g} dB {b['x_db_hz']:.1f} Hz")
+    a = r.get("audio")
+    if a:
+        lines.append(f"audio          SNR {_num(a['snr_db'], '.2f', ' dB')}, SINAD {_num(a['sinad_db'], '.2f', ' dB')} "
+                     f"(receiver (S+N+D)/(N+D) {_num(a['receiver_sinad_db'], '.2f', ' dB')}), "
+                     f"THD {_num(a['thd_percent'], '.3f', ' %')}, weighting {a['weighting']}")
+    acts = r.get("activity") or []
+    lines.append(f"activity       {len(acts)} segment(s)")
+    for seg in acts[:20]:
+        lines.append(f"  {seg['start_s']:9.3f} s - {seg['end_s']:9.3f} s  {seg['level_dbfs']:.1f} dBFS")
+    if len(acts) > 20:
+        lines.append(f"  ... {len(acts) - 20} more (see --json)")
+    return "\n".join(lines)
