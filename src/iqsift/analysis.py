@@ -225,6 +225,10 @@ class ChannelAnalyzer:
         except Exception:
             return None
         d = c.to_dict()
+        if not c.detected:
+            # no carrier stood out of the noise: a frequency would be noise, report none
+            return {"detected": False, "frequency_hz": None, "error_hz": None, "level_dbfs": None,
+                    "nominal_hz": self.nominal_hz}
         base = self.nominal_hz or 0.0
         d["offset_from_tuning_hz"] = c.frequency_hz
         d["frequency_hz"] = base + c.frequency_hz

@@ -529,6 +529,14 @@ class ChannelBackEnd:
 # ----------------------------------------------------------------------------------------------
 # Receiver
 # ----------------------------------------------------------------------------------------------
+def input_tap(rate_hz: float, center_hz: float, real_input: bool):
+    """Welch accumulator for the wideband input: about 300 Hz resolution, absolute RF axis."""
+    from .spectra import WelchAccumulator
+
+    seg = 1 << max(10, min(16, int(round(math.log2(rate_hz / 300)))))
+    return WelchAccumulator(rate_hz, nperseg=seg, center_hz=center_hz, name="input", onesided=real_input)
+
+
 @dataclass
 class ReceiverResult:
     """Audio and report of a finished run."""
@@ -587,6 +595,7 @@ class Receiver:
         spectra: bool | tuple[str, ...] = False,
         detector_options: dict | None = None,
         workers: int = 1,
+        own_front: bool = True,
     ) -> None:
         self.rate_hz = float(rate_hz)
         self.center_hz = center_hz
@@ -595,10 +604,15 @@ class Receiver:
             rate_hz, channel, center_hz=center_hz, real_input=real_input, engine=engine,
             ripple_db=ripple_db, atten_db=atten_db,
         )
-        self.front = _FftFrontEnd(self.design, workers) if engine == "fft" else _PolyphaseFrontEnd(self.design)
+        if not own_front:
+            self.front = None  # fed by a shared filter bank (see iqsift.extract)
+        elif engine == "fft":
+            self.front = _FftFrontEnd(self.design, workers)
+        else:
+            self.front = _PolyphaseFrontEnd(self.design)
         self.taps = self._make_taps(spectra)
-        self.back = ChannelBackEnd(self.design, self.front.delay_s, agc=agc, detector_options=detector_options,
-                                   taps=self.taps)
+        self.back = ChannelBackEnd(self.design, self.design.front_end_delay_s(), agc=agc,
+                                   detector_options=detector_options, taps=self.taps)
         self.audio_rate_hz = self.back.audio_rate_hz
         self.samples_in = 0
         self.audio_out = 0
@@ -625,9 +639,7 @@ class Receiver:
         # about 2.5 Hz resolution at the channel, 0.3 kHz at the input (common practice for voice channels)
         seg_ch = 1 << max(8, int(round(math.log2(ch_rate / 4))))
         if "input" in names:
-            seg_in = 1 << max(10, min(16, int(round(math.log2(self.rate_hz / 300)))))
-            taps["input"] = WelchAccumulator(self.rate_hz, nperseg=seg_in, center_hz=centre, name="input",
-                                             onesided=d.real_input)
+            taps["input"] = input_tap(self.rate_hz, centre, d.real_input)
         if "channel" in names:
             taps["channel"] = WelchAccumulator(ch_rate, nperseg=seg_ch, name="channel")
         if "detector" in names:
@@ -693,16 +705,28 @@ class Receiver:
         self.audio_out += audio.size
         return audio
 
+    @property
+    def flush_padding(self) -> int:
+        """Zero input samples needed at the end to push the chain's delayed tail out."""
+        return int(math.ceil(self.back.delay_s * self.rate_hz)) + 4 * self.design.decimation
+
+    def process_baseband(self, baseband: np.ndarray) -> np.ndarray:
+        """Feed channel baseband from an outside front end (e.g. a shared filter bank); returns audio."""
+        return self._emit(self.back.process(baseband))
+
     def flush(self) -> np.ndarray:
         """Finish: push the delayed tail out; total audio = round(samples_in · audio_rate / fs)."""
+        tail = self.front.process(np.zeros(self.flush_padding, np.complex64))
+        return self.finish_baseband(tail, self.front.flush())
+
+    def finish_baseband(self, tail: np.ndarray, flushed: np.ndarray) -> np.ndarray:
+        """Finish from the front end's output for the end padding (``tail``) and its flush."""
         expected = int(round(self.samples_in * self.audio_rate_hz / self.rate_hz))
-        pad = int(math.ceil(self.back.delay_s * self.rate_hz)) + 4 * self.design.decimation
         # baseband samples that still belong to the input (the front end emits ceil(n / D) of them)
         real_left = -(-self.samples_in // self.design.decimation) - self.back.baseband_samples
-        tail = self.front.process(np.zeros(pad, np.complex64))
         real_left = max(0, min(real_left, tail.size))
         pieces = [self.back.process(tail[:real_left]), self.back.process(tail[real_left:], count_level=False)]
-        pieces.append(self.back.process(self.front.flush(), count_level=False))
+        pieces.append(self.back.process(flushed, count_level=False))
         pieces.append(self.back.flush())
         audio = np.concatenate(pieces).astype(np.float32)
         need = expected - self.audio_out

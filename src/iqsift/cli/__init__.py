@@ -20,6 +20,7 @@ from typer import Abort, Exit
 from ..errors import IqsiftError
 from . import demod as _demod  # noqa: F401  (each import registers a command)
 from . import design_cmd as _design  # noqa: F401
+from . import extract_cmd as _extract  # noqa: F401
 from . import info as _info  # noqa: F401
 from . import measure_cmd as _measure  # noqa: F401
 from .app import app
