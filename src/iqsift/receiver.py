@@ -47,6 +47,8 @@ TAP_NAMES = ("input", "channel", "detector", "audio")
 the front end and fine mixing, the detector output, and the final audio."""
 
 AM_MODES = ("envelope", "coherent")
+KEEP_AUDIO_S = 1200.0
+"""With spectra on, the first 20 minutes of audio are kept for the waveform plot (19 MB at 16 kHz)."""
 EDGE_FADE_S = 0.005
 """Length of the raised-cosine fade-in and fade-out at the ends of the audio (s)."""
 
@@ -500,9 +502,11 @@ class ChannelBackEnd:
             self.power_sum += float(p.sum())
             self.peak_power = max(self.peak_power, float(p.max()))
             self.baseband_samples += baseband.size
-        tap = self.taps.get("channel")
-        if tap is not None and baseband.size and count_level:
-            tap.feed(baseband)
+        if baseband.size and count_level:
+            for key in ("channel", "channel_spectrogram"):
+                tap = self.taps.get(key)
+                if tap is not None:
+                    tap.feed(baseband)
         if self.on_baseband is not None and baseband.size and count_level:
             self.on_baseband(baseband)
         if self.analyzer is not None and baseband.size and count_level:
@@ -530,10 +534,10 @@ class ChannelBackEnd:
 # Receiver
 # ----------------------------------------------------------------------------------------------
 def input_tap(rate_hz: float, center_hz: float, real_input: bool):
-    """Welch accumulator for the wideband input: about 300 Hz resolution, absolute RF axis."""
+    """Welch accumulator for the wideband input: about 100 Hz resolution (at most 2^16 points), absolute RF axis."""
     from .spectra import WelchAccumulator
 
-    seg = 1 << max(10, min(16, int(round(math.log2(rate_hz / 300)))))
+    seg = 1 << max(10, min(16, int(round(math.log2(rate_hz / 100)))))
     return WelchAccumulator(rate_hz, nperseg=seg, center_hz=center_hz, name="input", onesided=real_input)
 
 
@@ -610,9 +614,16 @@ class Receiver:
             self.front = _FftFrontEnd(self.design, workers)
         else:
             self.front = _PolyphaseFrontEnd(self.design)
+        self.spectrograms: dict[str, Any] = {}
+        self._keep_audio = False
+        self._kept_audio: list[np.ndarray] = []
+        self._kept = 0
         self.taps = self._make_taps(spectra)
+        back_taps = dict(self.taps)
+        if "channel" in self.spectrograms:
+            back_taps["channel_spectrogram"] = self.spectrograms["channel"]
         self.back = ChannelBackEnd(self.design, self.design.front_end_delay_s(), agc=agc,
-                                   detector_options=detector_options, taps=self.taps)
+                                   detector_options=detector_options, taps=back_taps)
         self.audio_rate_hz = self.back.audio_rate_hz
         self.samples_in = 0
         self.audio_out = 0
@@ -647,6 +658,17 @@ class Receiver:
         if "audio" in names:
             seg_a = 1 << max(8, int(round(math.log2(d.resampler.rate_out_hz / 4))))
             taps["audio"] = WelchAccumulator(d.resampler.rate_out_hz, nperseg=seg_a, name="audio", onesided=True)
+        from .spectra import SpectrogramAccumulator
+
+        # time-frequency views (bounded memory: at most 800 columns, merged as the run grows)
+        if "channel" in names:
+            self.spectrograms["channel"] = SpectrogramAccumulator(ch_rate, nperseg=1 << max(7, int(round(
+                math.log2(ch_rate / 40)))))
+        if "audio" in names:
+            fa = d.resampler.rate_out_hz
+            self.spectrograms["audio"] = SpectrogramAccumulator(fa, nperseg=1 << max(7, int(round(math.log2(fa / 40)))),
+                                                                onesided=True)
+            self._keep_audio = True
         return taps
 
     # -- streaming -----------------------------------------------------
@@ -702,6 +724,14 @@ class Receiver:
         tap = self.taps.get("audio")
         if tap is not None and audio.size:
             tap.feed(audio)
+        gram = self.spectrograms.get("audio")
+        if gram is not None and audio.size:
+            gram.feed(audio)
+        if self._keep_audio and audio.size:
+            room = int(KEEP_AUDIO_S * self.audio_rate_hz) - self._kept
+            if room > 0:
+                self._kept_audio.append(audio[:room].copy())
+                self._kept += min(room, audio.size)
         self.audio_out += audio.size
         return audio
 
@@ -763,6 +793,20 @@ class Receiver:
         return ReceiverResult(audio, self.audio_rate_hz, self.report(), self.spectra())
 
     # -- results -------------------------------------------------------
+    def kept_audio(self) -> np.ndarray:
+        """The audio kept for the waveform plot (the first KEEP_AUDIO_S seconds, with spectra on)."""
+        return np.concatenate(self._kept_audio) if self._kept_audio else np.zeros(0, np.float32)
+
+    def spectrogram_results(self) -> dict[str, Any]:
+        """Accumulated spectrograms (``SpectrogramResult``) per tap, for those with data."""
+        out = {}
+        for name, acc in self.spectrograms.items():
+            try:
+                out[name] = acc.result()
+            except Exception:  # fewer samples than one segment
+                continue
+        return out
+
     def spectra(self, scaling: str = "density") -> dict[str, Any]:
         """Accumulated spectra per tap point (``Spectrum`` objects), for those with data."""
         return {name: acc.result(scaling) for name, acc in self.taps.items() if acc.ready}

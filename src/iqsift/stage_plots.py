@@ -1,7 +1,11 @@
 """Per-stage spectra figures of a finished receiver run (``--spectra DIR``).
 
 Writes one figure per tap point, an overview with every stage stacked, the
-data behind each as JSON, and a waveform plot of the audio. The designed
+data behind each as JSON, spectrograms of the channel baseband and of the
+audio, and a waveform plot of the audio. With the FFT engine mixing, channel
+filtering and decimation are one step, so the "channel" tap shows the result
+of all three; the input is shown around the channel (the full-band data is in
+its JSON file only when cropping left too few bins). The designed
 channel filter's edges and its response are drawn on the stages it acts on.
 """
 
@@ -15,7 +19,7 @@ import numpy as np
 __all__ = ["write_stage_plots", "stage_overlays"]
 
 _TITLES = {
-    "input": "input (capture)",
+    "input": "input around the channel (capture, before any processing)",
     "channel": "channel baseband (after mixing, channel filter, decimation)",
     "detector": "detector output",
     "audio": "audio",
@@ -29,7 +33,8 @@ def stage_overlays(receiver) -> dict[str, Any]:
     lo, hi = ch.passband_hz
     overlays: dict[str, Any] = {}
     bands: dict[str, Any] = {}
-    centre = (receiver.center_hz or 0.0) + d.carrier_offset_hz
+    # the input spectrum's axis is drawn relative to the capture centre: overlays use offsets from it
+    centre = d.carrier_offset_hz
     if d.prototype is not None:
         proto = d.prototype
         freqs, resp = _response(proto.taps, d.rate_hz, 4 * (proto.stopband_hz + abs(lo + hi)))
@@ -83,6 +88,8 @@ def write_stage_plots(receiver, out_dir: Path, *, capture_name: str, fmt: str = 
         final = out_dir / name
         return outputs.reserve(final) if outputs is not None else final
 
+    if "input" in spectra:
+        spectra["input"] = _around_channel(spectra["input"], receiver)
     order = [n for n in ("input", "channel", "detector", "audio") if n in spectra]
     for i, name in enumerate(order):
         spec = spectra[name]
@@ -100,4 +107,33 @@ def write_stage_plots(receiver, out_dir: Path, *, capture_name: str, fmt: str = 
         channel_band=[extras["bands"].get(n) for n in order], fmt=fmt,
     )
     written.append(out_dir / f"overview.{fmt}")
+    grams = receiver.spectrogram_results()
+    labels = {"channel": "channel baseband (after the channel filter)", "audio": "audio"}
+    for name, gram in grams.items():
+        times, freqs, power, units = gram
+        stem = f"spectrogram_{name}"
+        plots.plot_spectrogram(times, freqs, power, target(f"{stem}.{fmt}"), title=f"{title}\n{labels[name]}",
+                               fmt=fmt, units=units)
+        written.append(out_dir / f"{stem}.{fmt}")
+        plots.save_plot_data({"times_s": np.asarray(times), "freqs_hz": np.asarray(freqs),
+                              "power_db": np.asarray(power), "units": units}, target(f"{stem}.json"))
+        written.append(out_dir / f"{stem}.json")
+    audio = receiver.kept_audio() if audio is None else audio
+    if audio.size:
+        plots.plot_waveform(audio, receiver.audio_rate_hz, target(f"waveform.{fmt}"), title=f"{title}\naudio", fmt=fmt)
+        written.append(out_dir / f"waveform.{fmt}")
     return written
+
+
+def _around_channel(spectrum, receiver):
+    """The input spectrum cropped to the channel and its neighbourhood: ±max(4·B, 25 kHz) around the carrier."""
+    import dataclasses
+
+    d = receiver.design
+    centre = (receiver.center_hz or 0.0) + d.carrier_offset_hz
+    span = max(4 * d.channel.bandwidth_hz, 25e3)
+    f = np.asarray(spectrum.freqs_hz)
+    keep = (f >= centre - span) & (f <= centre + span)
+    if keep.sum() < 16:
+        return spectrum
+    return dataclasses.replace(spectrum, freqs_hz=f[keep], values_db=np.asarray(spectrum.values_db)[keep])
