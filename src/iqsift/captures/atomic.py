@@ -18,6 +18,15 @@ from ..errors import OutputExistsError, ParameterError
 __all__ = ["OutputSet", "check_output_path"]
 
 
+def _current_umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
+
+
+_UMASK = _current_umask()
+
+
 def check_output_path(path: str | os.PathLike, force: bool = False) -> Path:
     """Validate an output path before any work starts.
 
@@ -87,6 +96,7 @@ class OutputSet:
             if final.exists() and not self.force:
                 self.abort()
                 raise OutputExistsError(f"{final}: appeared while writing; pass --force to overwrite it")
+            os.chmod(temp, 0o666 & ~_UMASK)  # mkstemp creates 0600; outputs get the usual permissions
             os.replace(temp, final)
             done.append(final)
         self._pending = []
