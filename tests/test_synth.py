@@ -502,7 +502,7 @@ def test_regenerate_message_returns_samples_used(tmp_path, mode, message):
     n = 12000
     x = np.fromfile(meta.with_suffix(".sigmf-data"), "<f4").astype(np.float64)
     x = (x[0::2] + 1j * x[1::2]) * np.exp(-1j * _carrier_phase(truth, rate, n)) / truth["baseband_scale"]
-    msg = synth.regenerate_message(truth, rate, n)
+    msg = synth.regenerate_message(truth, rate, n, base_dir=truth_path.parent)  # paths in the truth are relative to it
     if mode == "am":
         used = (x - 1) / truth["depth"]
     elif mode == "lsb":

@@ -47,6 +47,8 @@ TAP_NAMES = ("input", "channel", "detector", "audio")
 the front end and fine mixing, the detector output, and the final audio."""
 
 AM_MODES = ("envelope", "coherent")
+AM_AUDIO_GAIN = 0.5
+"""AM audio scale: the carrier-normalised message m·s(t) is written as 0.5·m·s(t) (full scale = 200 % modulation)."""
 KEEP_AUDIO_S = 1200.0
 """With spectra on, the first 20 minutes of audio are kept for the waveform plot (19 MB at 16 kHz)."""
 EDGE_FADE_S = 0.005
@@ -420,7 +422,16 @@ class ChannelBackEnd:
         self.detector = make_detector(ch.mode, rate, **options)
         self.post: list[Any] = []
         if ch.mode in AM_MODES:
-            self.post.append(CarrierNormaliser(rate))
+            # the carrier level follows fading and push-to-talk keying; for voice (audio from 300 Hz) it may
+            # be fast (passes 15 Hz, stops 200 Hz: keying transients last ~10 ms instead of ~50 ms); for
+            # broadcast audio, which reaches down to ~50 Hz, it must be slower (passes 4 Hz, stops 40 Hz)
+            if ch.audio_band and ch.audio_band[0] >= 250:
+                self.post.append(CarrierNormaliser(rate, pass_hz=15.0, stop_hz=200.0))
+            else:
+                self.post.append(CarrierNormaliser(rate, pass_hz=4.0, stop_hz=40.0))
+        # AM audio: full scale is 200 % modulation (6 dB of headroom for overmodulation, keying
+        # transients and noise peaks); so 100 % modulation peaks at 0.5
+        self.audio_gain = AM_AUDIO_GAIN if ch.mode in AM_MODES else 1.0
         if agc is None:
             agc = ch.mode not in AM_MODES
         self.agc = bool(agc)
@@ -486,6 +497,8 @@ class ChannelBackEnd:
                     for later in self.post[i + 1 :]:
                         held = later.process(held)
                     d = np.concatenate([d, held])
+        if self.audio_gain != 1.0:
+            d = np.asarray(d, dtype=np.float32) * np.float32(self.audio_gain)
         audio = self.resampler.process(np.asarray(d, dtype=np.float32))
         return self._trim.process(audio)
 

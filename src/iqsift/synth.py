@@ -1035,7 +1035,8 @@ def _check_ratio(rec: Mapping[str, Any], rate: float) -> int:
     return int(round(ratio))
 
 
-def regenerate_message(truth_channel: Mapping[str, Any], rate: float, n: int) -> np.ndarray:
+def regenerate_message(truth_channel: Mapping[str, Any], rate: float, n: int, base_dir: str | os.PathLike | None = None
+                       ) -> np.ndarray:
     """The exact message samples a synthetic channel used, rebuilt from its truth record.
 
     Parameters
@@ -1048,6 +1049,9 @@ def regenerate_message(truth_channel: Mapping[str, Any], rate: float, n: int) ->
         ``message.rate_hz``.
     n : int
         Number of samples from sample 0.
+    base_dir : path, optional
+        Folder of the truth file: a file message's ``resolved_path`` written by
+        :func:`write_synth` is relative to it (default: the current folder).
 
     Returns
     -------
@@ -1058,7 +1062,12 @@ def regenerate_message(truth_channel: Mapping[str, Any], rate: float, n: int) ->
     """
     if not isinstance(truth_channel, Mapping) or "message" not in truth_channel or "mode" not in truth_channel:
         raise ParameterError("truth_channel: expected one entry of a truth file's 'channels' list")
-    message = _build_message(truth_channel, float(rate))
+    rec = truth_channel
+    msg = truth_channel.get("message") or {}
+    if msg.get("resolved_path") and not os.path.isabs(msg["resolved_path"]):
+        rec = dict(truth_channel)
+        rec["message"] = dict(msg, resolved_path=os.path.join(os.fspath(base_dir or "."), msg["resolved_path"]))
+    message = _build_message(rec, float(rate))
     n = int(n)
     if truth_channel["mode"] in ("usb", "lsb"):
         return message.analytic(0, n)
@@ -1596,8 +1605,14 @@ def write_synth(scenario: Scenario | Mapping[str, Any] | str | os.PathLike, out_
         truth["clipped_components"] = int(writer.clipped_components)
         truth["output"] = {"meta": meta_path.name, "data": data_path.name,
                            "data_sha512": writer.metadata()["global"]["core:sha512"]}
+        written = json.loads(json.dumps(truth, allow_nan=False))
+        for channel in written.get("channels", []):
+            message = channel.get("message") or {}
+            if message.get("resolved_path"):
+                # relative to the truth file's folder, so a clone elsewhere regenerates the same bytes
+                message["resolved_path"] = os.path.relpath(message["resolved_path"], meta_path.parent.resolve())
         with open(truth_tmp, "w", encoding="utf-8") as handle:
-            json.dump(truth, handle, indent=2, allow_nan=False)
+            json.dump(written, handle, indent=2, allow_nan=False)
             handle.write("\n")
     return [meta_path, data_path, truth_path]
 

@@ -86,6 +86,7 @@ class CarrierNormaliser:
     def reset(self) -> None:
         self._lp.reset()
         self._cover = FirFilter(self.design.taps, self.rate_hz)
+        self._power = FirFilter(self.design.taps, self.rate_hz)
         self._history = np.zeros(self._lag, np.float64)
         self.last_level = None
         self._strongest = 0.0
@@ -103,7 +104,10 @@ class CarrierNormaliser:
         v = np.ones(d.size) if valid is None else np.asarray(valid, dtype=np.float64)
         level = np.asarray(self._lp.process(d * v), dtype=np.float64)
         cover = np.asarray(self._cover.process(v), dtype=np.float64)
-        level = np.where(cover > 1e-3, level / np.maximum(cover, 1e-3), 0.0)
+        power = np.asarray(self._power.process(d * d * v), dtype=np.float64)
+        safe = np.maximum(cover, 1e-3)
+        level = np.where(cover > 1e-3, level / safe, 0.0)
+        rms = np.sqrt(np.maximum(np.where(cover > 1e-3, power / safe, 0.0), 0.0))
         joined = np.concatenate([self._history, d])
         delayed = joined[: d.size]
         self._history = joined[d.size :]
@@ -113,7 +117,12 @@ class CarrierNormaliser:
             running = np.maximum.accumulate(np.abs(level))
             running = np.maximum(running, self._strongest)
             self._strongest = float(running[-1])
-            out /= np.maximum(np.abs(level), np.maximum(running * self.max_gain, self.floor))
+            # carrier present: the mean of the detector output is most of its RMS (1/sqrt(1 + m^2/2) >= 0.8
+            # for a tone at m <= 1). Without a carrier (a coherent detector fed only noise, the mean near 0)
+            # dividing by the mean would blow the noise up: divide by 3 x the RMS instead (noise at -10 dBFS).
+            present = np.abs(level) >= 0.5 * rms
+            divisor = np.where(present, np.abs(level), 3.0 * rms)
+            out /= np.maximum(divisor, np.maximum(running * self.max_gain, self.floor))
         return out.astype(np.float32)
 
     def flush(self) -> np.ndarray:
