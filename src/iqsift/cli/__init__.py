@@ -23,6 +23,7 @@ from . import design_cmd as _design  # noqa: F401
 from . import extract_cmd as _extract  # noqa: F401
 from . import info as _info  # noqa: F401
 from . import measure_cmd as _measure  # noqa: F401
+from . import survey_cmd as _survey  # noqa: F401
 from . import synth_cmd as _synth  # noqa: F401
 from .app import app
 

@@ -1,0 +1,176 @@
+"""``iqsift survey``: find the emissions in a capture, measure them, and propose a channel plan."""
+
+from __future__ import annotations
+
+import math
+from typing import Any, Optional
+
+import typer
+
+from ..captures import OutputSet, open_capture
+from ..errors import ParameterError
+from ..rasters import parse_raster
+from ..survey import DEFAULT_THRESHOLD_DB, survey_capture, survey_plan_text
+from ..units import format_hz, parse_positive_hz
+from .app import (
+    CenterOption,
+    ForceOption,
+    FormatOption,
+    JsonOption,
+    QuietOption,
+    RateOption,
+    StrictOption,
+    app,
+)
+from .common import emit_json, progress_blocks
+from .demod import DurationOption, NonfiniteOption, StartOption
+from .info import capture_summary
+
+__all__ = ["survey", "format_survey", "parse_threshold"]
+
+
+def parse_threshold(text: str) -> float:
+    """Read ``--threshold`` (dB above the noise floor, 3 to 100)."""
+    try:
+        value = float(str(text).strip().removesuffix("dB").removesuffix("db").strip())
+    except ValueError:
+        raise ParameterError(f"--threshold: cannot read {text!r} as a number of dB; write e.g. 10 or 12.5") from None
+    if not (math.isfinite(value) and 3.0 <= value <= 100.0):
+        raise ParameterError(f"--threshold: {text!r} dB; it must lie between 3 and 100 dB above the noise floor")
+    return value
+
+
+@app.command("survey")
+def survey(
+    capture_path: str = typer.Argument(..., metavar="CAPTURE", help="Capture file (SigMF, WAV/FLAC, or raw)."),
+    threshold: str = typer.Option(
+        str(DEFAULT_THRESHOLD_DB).rstrip("0").rstrip("."), "--threshold", "-t",
+        help="Detection threshold in dB above the local noise floor (3 to 100).",
+    ),
+    raster: Optional[str] = typer.Option(
+        None, "--raster", help="Snap carriers to a channel raster: 25k, 8.33k (aeronautical, with ICAO names), 9k, 10k."
+    ),
+    plan_out: Optional[str] = typer.Option(
+        None, "--plan-out", help="Write the proposed channel plan (TOML, as 'extract --plan' reads it) to this file."
+    ),
+    resolution: Optional[str] = typer.Option(
+        None, "--resolution", help="Detection bin width in Hz (default about 60 Hz, coarser for short captures)."
+    ),
+    start: Optional[str] = StartOption,
+    duration: Optional[str] = DurationOption,
+    allow_nonfinite: bool = NonfiniteOption,
+    force: bool = ForceOption,
+    quiet: bool = QuietOption,
+    json_out: bool = JsonOption,
+    format: Optional[str] = FormatOption,
+    rate: Optional[str] = RateOption,
+    center: Optional[str] = CenterOption,
+    strict: bool = StrictOption,
+) -> None:
+    """Find the emissions in a capture: frequency, level, bandwidth, class; optionally write a channel plan."""
+    threshold_db = parse_threshold(threshold)
+    raster_obj = parse_raster(raster) if raster is not None else None
+    resolution_hz = parse_positive_hz(resolution, "--resolution") if resolution is not None else None
+    with OutputSet(force=force) as outputs:
+        plan_tmp = outputs.reserve(plan_out) if plan_out else None  # checked before any work
+        with open_capture(capture_path, format=format, rate=rate, center=center, strict=strict) as capture:
+            selection = capture.select(start, duration)
+            if raster_obj is not None and capture.center_for(selection) is None:
+                raise ParameterError(
+                    f"--raster {raster}: {capture.path} has no centre frequency, so frequencies are offsets; "
+                    "give the centre with --center"
+                )
+            result = survey_capture(
+                capture,
+                threshold_db=threshold_db,
+                raster=raster_obj,
+                selection=selection,
+                resolution_hz=resolution_hz,
+                nonfinite="zero" if allow_nonfinite else "error",
+                wrap_blocks=lambda blocks, total: progress_blocks(blocks, total, "survey", quiet),
+            )
+            report = result.to_dict()
+            report["capture"] = capture_summary(capture)
+            report["selection"] = {
+                "start_s": selection.start / capture.sample_rate_hz,
+                "duration_s": selection.count / capture.sample_rate_hz,
+                "sample_start": selection.start,
+                "sample_count": selection.count,
+            }
+            report["plan"] = str(plan_out) if plan_out else None
+            if plan_tmp is not None and result.emissions:
+                plan_tmp.write_text(survey_plan_text(result, capture_name=capture.path.name), encoding="utf-8")
+        if json_out:
+            emit_json(report)
+        else:
+            typer.echo(format_survey(report))
+        if plan_tmp is not None and not result.emissions:
+            raise ParameterError(
+                f"--plan-out {plan_out}: no emissions found at {threshold_db:g} dB above the noise floor, "
+                "so there is no plan to write"
+            )
+
+
+def _freq(value: float | None, has_centre: bool) -> str:
+    if value is None:
+        return "-"
+    if has_centre:
+        return format_hz(value, 6)
+    return f"{value:+.1f} Hz"
+
+
+def format_survey(report: dict[str, Any]) -> str:
+    """Plain-text rendering of a survey report (a table of emissions)."""
+    cap = report.get("capture") or {}
+    spec = report["spectrum"]
+    has_centre = report["center_hz"] is not None
+    kind = "complex IQ" if report["is_complex"] else "real"
+    lines = []
+    if cap:
+        lines.append(f"capture    {cap['path']} ({kind}, {report['sample_rate_hz']:g} S/s, "
+                     f"centre {format_hz(report['center_hz']) if has_centre else 'unknown: frequencies are offsets'})")
+    sel = report.get("selection")
+    if sel:
+        lines.append(f"analysed   {sel['duration_s']:.6g} s from {sel['start_s']:.6g} s")
+    fine = (f"; carriers refined on {spec['fine_bin_width_hz']:.2f} Hz bins"
+            if spec.get("fine_bin_width_hz") else "")
+    lines.append(
+        f"spectrum   {spec['nperseg']}-point {spec['window']}, {spec['bin_width_hz']:.2f} Hz bins, "
+        f"{spec['segments_averaged']} averages (nu = {spec['dof']:.0f}){fine}"
+    )
+    lo, hi = report["noise_floor_range_dbfs_per_hz"]
+    lines.append(
+        f"floor      {report['noise_floor_dbfs_per_hz']:.1f} dBFS/Hz (median; {lo:.1f} to {hi:.1f} across the band); "
+        f"threshold {report['threshold_db']:g} dB, false alarms expected <= {report['expected_false_detections']:.1g}"
+    )
+    dc = report.get("dc_offset")
+    if dc is not None:
+        state = "visible, not an emission" if dc["visible"] else "below the threshold"
+        lines.append(
+            f"DC offset  {dc['level_dbfs']:.1f} dBFS (I {dc['i']:+.5f}, Q {dc['q']:+.5f}); "
+            f"0 Hz bin {dc['spike_above_floor_db']:.1f} dB above the floor ({state})"
+        )
+    emissions = report["emissions"]
+    if not emissions:
+        lines.append(f"emissions  none at {report['threshold_db']:g} dB above the floor")
+        return "\n".join(lines)
+    lines.append(f"emissions  {len(emissions)}")
+    head = (f"{'#':>3}  {'frequency':>18}  {'level dBFS':>10}  {'above dB':>8}  {'occupied':>9}  "
+            f"{'class':<9} {'designator':<10} {'channel':<10} note")
+    lines.append(head)
+    for e in emissions:
+        cls = e["class"] + (f" {e['sideband']}" if e["sideband"] else "")
+        if e["mode"] == "dsb":
+            cls += " dsb"
+        occ = e["bandwidth"]["occupied_hz"]
+        channel = e["channel_name"] or (
+            format_hz(e["raster"]["frequency_hz"], 4).replace(" ", "") if e.get("raster") else "-"
+        )
+        lines.append(
+            f"{e['index']:>3}  {_freq(e['frequency_hz'], has_centre):>18}  {e['level_dbfs']:>10.1f}  "
+            f"{e['peak_above_floor_db']:>8.1f}  {occ:>7.0f}Hz  {cls:<9} {e['designator']:<10} {channel:<10} "
+            f"{e['confidence']}: {e['note']}"
+        )
+    if report.get("plan"):
+        lines.append(f"plan       {report['plan']}")
+    return "\n".join(lines)
