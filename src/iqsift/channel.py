@@ -113,14 +113,16 @@ class Channel:
     def transition(self) -> float:
         """Channel filter transition width (Hz).
 
-        Default: a quarter of the bandwidth (for a 6 kHz AM channel 1.5 kHz, so the stopband starts
-        4.5 kHz from the carrier, clear of an 8.33 kHz neighbour's sideband at 5.33 kHz); for
-        single sideband at most twice the lowest modulating frequency, so the carrier and the
-        opposite sideband lie in the stopband or the lower transition band.
+        Default: 0.35 of the bandwidth (for a 6 kHz AM channel 2.1 kHz, so the stopband starts
+        5.1 kHz from the carrier, clear of the nearest sideband of a neighbour on the 8.33 kHz
+        raster, which starts 8.333 − 3 = 5.33 kHz away); for single sideband at most twice the
+        lowest modulating frequency, so the carrier and the opposite sideband lie in the stopband
+        or the lower transition band. A wider transition means a shorter filter: the filter's
+        length, and so the processing cost, is inversely proportional to it (Kaiser 1974).
         """
         if self.transition_hz is not None:
             return self.transition_hz
-        t = 0.25 * self.bandwidth_hz
+        t = 0.35 * self.bandwidth_hz
         if self.is_single_sideband and self.audio_low_hz > 0:
             t = min(t, 2 * self.audio_low_hz)
         return t

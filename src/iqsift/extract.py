@@ -73,8 +73,8 @@ class Extractor:
         Accumulate stage spectra per channel (the input spectrum is shared).
     analyze : bool
         Measure every channel (carrier, depth, bandwidth, activity).
-    workers : int
-        Threads for the bank's forward FFT.
+    workers : int or None
+        Threads for the bank's transforms (None: all CPUs, up to 4).
 
     Raises
     ------
@@ -95,7 +95,7 @@ class Extractor:
         agc: bool | None = None,
         spectra: bool = False,
         analyze: bool = True,
-        workers: int = 1,
+        workers: int | None = None,
     ) -> None:
         if not channels:
             raise ParameterError("no channels to extract")

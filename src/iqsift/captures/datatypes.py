@@ -90,6 +90,8 @@ class DataType:
         ndarray of complex64
             Real datatypes give samples with a zero imaginary part.
         """
+        if self.kind == "f" and self.bits == 32 and self.is_complex and raw.dtype == np.dtype("<f4"):
+            return raw.view(np.complex64)  # stored exactly as numpy's complex64: no copy
         if self.kind == "f":
             values = raw.astype(np.float32, copy=False)
         else:

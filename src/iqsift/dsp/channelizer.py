@@ -39,6 +39,7 @@ complex exponential of amplitude A after mixing).
 from __future__ import annotations
 
 import math
+import os
 from dataclasses import dataclass
 
 import numpy as np
@@ -46,7 +47,7 @@ import scipy.fft
 
 from ..errors import ParameterError
 
-__all__ = ["BankChannel", "FastConvChannelizer", "choose_fft_size", "power_of_two_decimation"]
+__all__ = ["BankChannel", "FastConvChannelizer", "choose_fft_size", "default_workers", "power_of_two_decimation"]
 
 _MAX_FFT = 1 << 20
 
@@ -77,6 +78,15 @@ class BankChannel:
     def center_offset_hz(self) -> float:
         """Passband centre relative to the carrier (Hz)."""
         return 0.5 * (self.passband_hz[0] + self.passband_hz[1])
+
+
+def default_workers() -> int:
+    """Threads for the filter bank's transforms: the CPUs available to this process, at most 4."""
+    try:
+        available = len(os.sched_getaffinity(0))
+    except (AttributeError, OSError):  # not on Linux
+        available = os.cpu_count() or 1
+    return max(1, min(4, available))
 
 
 def power_of_two_decimation(rate_hz: float, min_rate_hz: float) -> int:
@@ -118,8 +128,10 @@ class FastConvChannelizer:
         by 2 (analytic-signal convention).
     fft_size : int, optional
         Override the FFT size (power of two, large enough for the filters).
-    workers : int
-        Threads for the forward FFT (scipy.fft ``workers``).
+    workers : int or None
+        Threads for the transforms (scipy.fft ``workers``); None uses every CPU
+        this process may run on, up to 4 (the frames of a block are
+        transformed in parallel).
 
     Notes
     -----
@@ -137,14 +149,14 @@ class FastConvChannelizer:
         *,
         real_input: bool = False,
         fft_size: int | None = None,
-        workers: int = 1,
+        workers: int | None = None,
     ) -> None:
         if not channels:
             raise ParameterError("channelizer: at least one channel is needed")
         self.rate_hz = float(rate_hz)
         self.channels = list(channels)
         self.real_input = real_input
-        self.workers = workers
+        self.workers = default_workers() if workers is None else max(1, int(workers))
         decimations = [c.decimation for c in self.channels]
         for d in decimations:
             if d < 1 or d & (d - 1):

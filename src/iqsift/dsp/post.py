@@ -87,6 +87,8 @@ class CarrierNormaliser:
         self._lp.reset()
         self._cover = FirFilter(self.design.taps, self.rate_hz)
         self._power = FirFilter(self.design.taps, self.rate_hz)
+        self._run = 0  # consecutive valid samples fed most recently
+        self._cover_stale = False
         self._history = np.zeros(self._lag, np.float64)
         self.last_level = None
         self._strongest = 0.0
@@ -101,10 +103,29 @@ class CarrierNormaliser:
         d = np.asarray(block, dtype=np.float64)
         if d.size == 0:
             return np.zeros(0, np.float32)
-        v = np.ones(d.size) if valid is None else np.asarray(valid, dtype=np.float64)
-        level = np.asarray(self._lp.process(d * v), dtype=np.float64)
-        cover = np.asarray(self._cover.process(v), dtype=np.float64)
-        power = np.asarray(self._power.process(d * d * v), dtype=np.float64)
+        all_valid = valid is None or bool(np.all(valid))
+        ntaps = self.design.num_taps
+        if all_valid:
+            dv = d
+            if self._run >= ntaps:
+                # the cover filter has seen only valid samples for a whole filter length: its output is 1
+                cover = np.ones(d.size)
+                self._cover_stale = True
+            else:
+                cover = np.asarray(self._cover.process(np.ones(d.size)), dtype=np.float64)
+            self._run += d.size
+        else:
+            v = np.asarray(valid, dtype=np.float64)
+            dv = d * v
+            if self._cover_stale:  # bring the skipped cover filter back: its history is all ones
+                self._cover.reset()
+                self._cover.process(np.ones(ntaps))
+                self._cover_stale = False
+            cover = np.asarray(self._cover.process(v), dtype=np.float64)
+            last_invalid = np.flatnonzero(v == 0)
+            self._run = d.size - 1 - int(last_invalid[-1]) if last_invalid.size else self._run + d.size
+        level = np.asarray(self._lp.process(dv), dtype=np.float64)
+        power = np.asarray(self._power.process(dv * d), dtype=np.float64)
         safe = np.maximum(cover, 1e-3)
         level = np.where(cover > 1e-3, level / safe, 0.0)
         rms = np.sqrt(np.maximum(np.where(cover > 1e-3, power / safe, 0.0), 0.0))
