@@ -36,8 +36,8 @@ from .channel import Channel
 from .dsp.channelizer import BankChannel, FastConvChannelizer, choose_fft_size, power_of_two_decimation
 from .dsp.design import LowpassDesign, design_lowpass, design_resampler, plan_decimation
 from .dsp.detectors import make_detector
-from .dsp.post import CarrierNormaliser, DelayTrim, FractionalDelay
-from .dsp.stages import AGC, AudioBandpass, FirDecimator, Mixer, RationalResampler
+from .dsp.post import CarrierNormaliser, DelayTrim, FractionalDelay, _long_fft
+from .dsp.stages import AGC, AudioBandpass, FirDecimator, FirFilter, Mixer, RationalResampler
 from .errors import ParameterError
 
 __all__ = ["ChannelDesign", "design_channel", "ChannelBackEnd", "Receiver", "ReceiverResult", "TAP_NAMES"]
@@ -221,10 +221,14 @@ def design_channel(
     """Design the chain for ``channel`` in a capture at ``rate_hz`` centred on ``center_hz``.
 
     The channel rate is the input rate divided by the largest power of two
-    that keeps it at least ``max(2.5 × the outermost filter edge, 4 × the
-    audio top)`` — room for the transition band and for the envelope's
-    harmonics. The prototype's passband edge is the passband half-width and
-    its stopband edge lies one transition further out.
+    that keeps it at least ``max(3 × top, top + edge)``, where ``top`` is the
+    outermost passband edge and ``edge`` the outermost stopband edge relative
+    to the carrier: the passband sits inside the middle two thirds of the
+    channel band, and in the polyphase engine nothing beyond the stopband edge
+    can fold back into the passband. (The FFT engine discards everything
+    outside the channel's bins, so its channel filter is, in effect, cut off
+    at half the channel rate.) The prototype's passband edge is the passband
+    half-width and its stopband edge lies one transition further out.
 
     Raises
     ------
@@ -249,7 +253,8 @@ def design_channel(
             f"reaches outside the capture band ({span})"
         )
     edge = max(abs(lo - t), abs(hi + t))
-    min_rate = max(2.5 * edge, 4 * channel.audio_top_hz)
+    top = max(abs(lo), abs(hi))
+    min_rate = max(3.0 * top, top + edge)
     if min_rate > rate_hz:
         raise ParameterError(
             f"channel {where}: needs a capture rate of at least {min_rate:g} samples/s, the capture has {rate_hz:g}"
@@ -394,6 +399,23 @@ def bank_channel(design: ChannelDesign) -> BankChannel:
 # ----------------------------------------------------------------------------------------------
 # Back end (channel baseband → audio)
 # ----------------------------------------------------------------------------------------------
+class _Delayed:
+    """A stage with its delay stated by its builder (for merged filters)."""
+
+    def __init__(self, stage: Any, delay: float) -> None:
+        self.stage = stage
+        self.delay = float(delay)
+
+    def process(self, block: np.ndarray) -> np.ndarray:
+        return np.asarray(self.stage.process(block), dtype=np.float32)
+
+    def flush(self) -> np.ndarray:
+        return np.zeros(0, np.float32)
+
+    def reset(self) -> None:
+        self.stage.reset()
+
+
 class ChannelBackEnd:
     """Detector, audio post-processing and resampling for one channel, with delay compensation.
 
@@ -462,7 +484,15 @@ class ChannelBackEnd:
         fa = self.audio_rate_hz
         whole = math.ceil((delay_s + half / rate) * fa - 1e-9)
         extra = max(float(half), (whole / fa - delay_s) * rate)  # channel samples, >= half
-        self.post.append(FractionalDelay(rate, extra, half_length=half))
+        fractional = FractionalDelay(rate, extra, half_length=half)
+        if self.post and isinstance(self.post[-1], AudioBandpass):
+            # one linear-phase FIR for both: the band-pass convolved with the fractional delay
+            band = self.post.pop()
+            joint = np.convolve(band.taps, fractional.taps)
+            merged = FirFilter(joint, rate, method="fft", fft_size=_long_fft(joint.size))
+            self.post.append(_Delayed(merged, band.delay + fractional.delay))
+        else:
+            self.post.append(fractional)
         delay_s += extra / rate
         self.delay_s = delay_s
         self.trim_samples = int(round(delay_s * self.audio_rate_hz))

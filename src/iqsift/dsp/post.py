@@ -17,6 +17,13 @@ from .stages import FirFilter
 __all__ = ["CarrierNormaliser", "DelayTrim", "FractionalDelay"]
 
 
+def _long_fft(num_taps: int) -> int:
+    """Overlap-save FFT size for filters fed long blocks: few transforms per block (less Python overhead)."""
+    import scipy.fft
+
+    return int(scipy.fft.next_fast_len(max(8192, 16 * num_taps)))
+
+
 class CarrierNormaliser:
     """``(d − c)/c`` with ``c`` the carrier level from a linear-phase low-pass of ``d``.
 
@@ -62,7 +69,7 @@ class CarrierNormaliser:
         stop_hz = min(stop_hz, 0.45 * rate_hz)
         pass_hz = min(pass_hz, 0.5 * stop_hz)
         self.design = design_lowpass(rate_hz, pass_hz, stop_hz, ripple_db=0.5, atten_db=atten_db, method="kaiser")
-        self._lp = FirFilter(self.design.taps, rate_hz)
+        self._lp = FirFilter(self.design.taps, rate_hz, method="fft", fft_size=_long_fft(self.design.num_taps))
         self._lag = int(round(self.design.group_delay_samples))
         self.rate_hz = float(rate_hz)
         self.floor = float(floor)
@@ -86,10 +93,9 @@ class CarrierNormaliser:
     def reset(self) -> None:
         self._lp.reset()
         self._cover = FirFilter(self.design.taps, self.rate_hz)
-        self._power = FirFilter(self.design.taps, self.rate_hz)
         self._run = 0  # consecutive valid samples fed most recently
         self._cover_stale = False
-        self._history = np.zeros(self._lag, np.float64)
+        self._history = np.zeros(self._lag, np.float32)
         self.last_level = None
         self._strongest = 0.0
 
@@ -100,50 +106,65 @@ class CarrierNormaliser:
         ``LPF(d·v) / LPF(v)``, so the start and end of a stream (and gaps
         marked invalid) do not drag the level towards zero.
         """
-        d = np.asarray(block, dtype=np.float64)
+        d = np.asarray(block, dtype=np.float32)
         if d.size == 0:
             return np.zeros(0, np.float32)
         all_valid = valid is None or bool(np.all(valid))
         ntaps = self.design.num_taps
+        cover = None  # None: 1 everywhere (the steady state, most blocks)
         if all_valid:
             dv = d
             if self._run >= ntaps:
                 # the cover filter has seen only valid samples for a whole filter length: its output is 1
-                cover = np.ones(d.size)
                 self._cover_stale = True
             else:
-                cover = np.asarray(self._cover.process(np.ones(d.size)), dtype=np.float64)
+                cover = np.asarray(self._cover.process(np.ones(d.size, np.float32)), dtype=np.float32)
             self._run += d.size
         else:
-            v = np.asarray(valid, dtype=np.float64)
+            v = np.asarray(valid, dtype=np.float32)
             dv = d * v
             if self._cover_stale:  # bring the skipped cover filter back: its history is all ones
                 self._cover.reset()
-                self._cover.process(np.ones(ntaps))
+                self._cover.process(np.ones(ntaps, np.float32))
                 self._cover_stale = False
-            cover = np.asarray(self._cover.process(v), dtype=np.float64)
+            cover = np.asarray(self._cover.process(v), dtype=np.float32)
             last_invalid = np.flatnonzero(v == 0)
             self._run = d.size - 1 - int(last_invalid[-1]) if last_invalid.size else self._run + d.size
-        level = np.asarray(self._lp.process(dv), dtype=np.float64)
-        power = np.asarray(self._power.process(dv * d), dtype=np.float64)
-        safe = np.maximum(cover, 1e-3)
-        level = np.where(cover > 1e-3, level / safe, 0.0)
-        rms = np.sqrt(np.maximum(np.where(cover > 1e-3, power / safe, 0.0), 0.0))
+        if self.normalise:
+            # level and mean square through one complex filter run (real taps: the real and imaginary
+            # parts are filtered independently)
+            pair = np.empty(d.size, np.complex64)
+            pair.real = dv
+            pair.imag = dv * d
+            both = np.asarray(self._lp.process(pair))
+            level = np.ascontiguousarray(both.real, dtype=np.float32)
+            power = np.ascontiguousarray(both.imag, dtype=np.float32)
+        else:
+            level = np.asarray(self._lp.process(dv), dtype=np.float32)
+            power = None
+        if cover is not None:
+            ok = cover > 1e-3
+            safe = np.maximum(cover, np.float32(1e-3))
+            level = np.where(ok, level / safe, np.float32(0))
+            if power is not None:
+                power = np.where(ok, power / safe, np.float32(0))
         joined = np.concatenate([self._history, d])
         delayed = joined[: d.size]
         self._history = joined[d.size :]
         self.last_level = float(level[-1])
         out = delayed - level
         if self.normalise:
-            running = np.maximum.accumulate(np.abs(level))
-            running = np.maximum(running, self._strongest)
+            magnitude = np.abs(level)
+            running = np.maximum.accumulate(magnitude)
+            np.maximum(running, np.float32(self._strongest), out=running)
             self._strongest = float(running[-1])
             # carrier present: the mean of the detector output is most of its RMS (1/sqrt(1 + m^2/2) >= 0.8
             # for a tone at m <= 1). Without a carrier (a coherent detector fed only noise, the mean near 0)
             # dividing by the mean would blow the noise up: divide by 3 x the RMS instead (noise at -10 dBFS).
-            present = np.abs(level) >= 0.5 * rms
-            divisor = np.where(present, np.abs(level), 3.0 * rms)
-            out /= np.maximum(divisor, np.maximum(running * self.max_gain, self.floor))
+            rms = np.sqrt(np.maximum(power, np.float32(0)))
+            divisor = np.where(magnitude >= 0.5 * rms, magnitude, 3.0 * rms)
+            np.maximum(divisor, np.maximum(running * np.float32(self.max_gain), np.float32(self.floor)), out=divisor)
+            out /= divisor
         return out.astype(np.float32)
 
     def flush(self) -> np.ndarray:
