@@ -426,8 +426,10 @@ class ChannelBackEnd:
     front_delay_s : float
         Delay of the front end feeding this back end (s).
     agc : bool or None
-        Automatic gain control; None = on for suppressed-carrier modes
-        (usb, lsb, dsb), off for AM with carrier (normalised by the carrier).
+        Automatic gain control (peak level, target −12 dBFS, attack 5 ms,
+        decay 1 s, at most 60 dB of gain; :class:`iqsift.dsp.stages.AGC`);
+        None = on for suppressed-carrier modes (usb, lsb, dsb), off for AM with
+        carrier, whose audio is normalised by the carrier level instead.
     detector_options : dict
         Passed to :func:`iqsift.dsp.detectors.make_detector`.
     """
@@ -465,7 +467,7 @@ class ChannelBackEnd:
             agc = ch.mode not in AM_MODES
         self.agc = bool(agc)
         if self.agc:
-            self.post.append(AGC(rate, target_dbfs=-6.0, attack_s=0.02, decay_s=1.0, max_gain_db=60.0))
+            self.post.append(AGC(rate, target_dbfs=-12.0, attack_s=0.005, decay_s=1.0, max_gain_db=60.0))
         band = ch.audio_band
         if band:
             self.post.append(AudioBandpass(rate, band[0], band[1]))

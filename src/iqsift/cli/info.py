@@ -51,6 +51,15 @@ def info(
         typer.echo(format_info(result))
 
 
+def format_rate(rate: float) -> str:
+    """A sample rate for people: 2.4 MS/s, 240 kS/s, 8000 S/s."""
+    if rate >= 1e6:
+        return f"{rate / 1e6:g} MS/s"
+    if rate >= 1e3:
+        return f"{rate / 1e3:g} kS/s"
+    return f"{rate:g} S/s"
+
+
 def _db(value: float | None, unit: str = "dBFS") -> str:
     return "-inf " + unit if value is None else f"{value:.2f} {unit}"
 
@@ -62,7 +71,7 @@ def format_info(result: dict[str, Any]) -> str:
     lines = [
         f"capture       {result['path']}",
         f"format        {result['format']} ({result['datatype']}, {kind})",
-        f"sample rate   {format_hz(result['sample_rate_hz']).replace('Hz', 'S/s')}",
+        f"sample rate   {format_rate(result['sample_rate_hz'])}",
         f"centre        {format_hz(result['center_hz']) if result['center_hz'] is not None else 'unknown (frequencies are offsets)'}",
         f"duration      {result['duration_s']:.6g} s ({result['samples']} samples)",
         f"segments      {len(result['segments'])}",
