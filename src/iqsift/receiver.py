@@ -282,7 +282,11 @@ def design_channel(
             f"channel {where}: audio up to {audio_top:g} Hz does not fit an audio rate of {audio_rate:g} samples/s"
         )
     res_pass = audio_top
-    res_stop = min(ch_rate, audio_rate) / 2
+    # Only what would land inside the audio band [0, top] must be stopped: an image (or alias) of content
+    # at f <= top falls at min(rates) - f >= min(rates) - top. So the stopband may start there (but never
+    # below the lower Nyquist frequency): a transition about twice as wide, half the taps.
+    low = min(ch_rate, audio_rate)
+    res_stop = max(low / 2, low - audio_top)
     # the audio resampler gets a tighter ripple than the channel filter: with 0.1 dB peak-to-peak an
     # equiripple design alone would limit the message SNR to about 45 dB
     # (Kaiser: one design and one verification; the resampler runs at the channel rate, so the few extra
@@ -456,10 +460,11 @@ class ChannelBackEnd:
             # the carrier level follows fading and push-to-talk keying; for voice (audio from 300 Hz) it may
             # be fast (passes 15 Hz, stops 200 Hz: keying transients last ~10 ms instead of ~50 ms); for
             # broadcast audio, which reaches down to ~50 Hz, it must be slower (passes 4 Hz, stops 40 Hz)
+            check = ch.mode != "envelope"  # only a coherent detector can output a zero-mean signal
             if ch.audio_band and ch.audio_band[0] >= 250:
-                self.post.append(CarrierNormaliser(rate, pass_hz=15.0, stop_hz=200.0))
+                self.post.append(CarrierNormaliser(rate, pass_hz=15.0, stop_hz=200.0, check_carrier=check))
             else:
-                self.post.append(CarrierNormaliser(rate, pass_hz=4.0, stop_hz=40.0))
+                self.post.append(CarrierNormaliser(rate, pass_hz=4.0, stop_hz=40.0, check_carrier=check))
         # AM audio: full scale is 200 % modulation (6 dB of headroom for overmodulation, keying
         # transients and noise peaks); so 100 % modulation peaks at 0.5
         self.audio_gain = AM_AUDIO_GAIN if ch.mode in AM_MODES else 1.0
@@ -514,10 +519,13 @@ class ChannelBackEnd:
 
     def _valid(self, count: int) -> np.ndarray:
         """Which of the next ``count`` detector outputs stem from real input (not start-up or padding)."""
-        idx = self._detector_out + np.arange(count)
+        first = self._detector_out
         lag = int(round(self.detector.delay))
         stop = np.inf if self._real_total is None else self._real_total + lag
         self._detector_out += count
+        if first >= lag and first + count <= stop:
+            return None  # all valid (the usual case): no mask needed
+        idx = first + np.arange(count)
         return (idx >= lag) & (idx < stop)
 
     def _post(self, d: np.ndarray, final: bool) -> np.ndarray:
@@ -550,8 +558,9 @@ class ChannelBackEnd:
         if not count_level and self._real_total is None:
             self._real_total = self.baseband_samples
         if count_level and baseband.size:
-            p = baseband.real.astype(np.float64) ** 2 + baseband.imag.astype(np.float64) ** 2
-            self.power_sum += float(p.sum())
+            p = np.square(baseband.real)
+            p += np.square(baseband.imag)
+            self.power_sum += float(p.sum(dtype=np.float64))
             self.peak_power = max(self.peak_power, float(p.max()))
             self.baseband_samples += baseband.size
         if baseband.size and count_level:
@@ -741,8 +750,10 @@ class Receiver:
         up to ~30 % of full scale). The fades confine the edits to 5 ms at each end.
         """
         n_fade = int(round(EDGE_FADE_S * self.audio_rate_hz))
-        audio = np.array(audio, dtype=np.float32, copy=True)
         head = n_fade - self.audio_out
+        if (head <= 0 and not at_end) or not audio.size:
+            return audio
+        audio = np.array(audio, dtype=np.float32, copy=True)
         if head > 0 and audio.size:
             k = np.arange(self.audio_out, self.audio_out + min(head, audio.size))
             audio[: k.size] *= (0.5 - 0.5 * np.cos(np.pi * (k + 0.5) / n_fade)).astype(np.float32)

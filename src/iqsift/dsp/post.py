@@ -38,6 +38,9 @@ class CarrierNormaliser:
     floor : float
         Smallest carrier level divided by (full scale = 1), so silence does
         not blow up.
+    check_carrier : bool
+        Guard against a detector output without a carrier (see below); not
+        needed after an envelope detector, whose output is never zero-mean.
     max_gain_db : float
         The divisor never falls below the strongest level seen so far minus
         this many dB: when the carrier goes away (push-to-talk off, deep
@@ -65,6 +68,7 @@ class CarrierNormaliser:
         floor: float = 1e-6,
         normalise: bool = True,
         max_gain_db: float = 30.0,
+        check_carrier: bool = True,
     ) -> None:
         stop_hz = min(stop_hz, 0.45 * rate_hz)
         pass_hz = min(pass_hz, 0.5 * stop_hz)
@@ -74,6 +78,7 @@ class CarrierNormaliser:
         self.rate_hz = float(rate_hz)
         self.floor = float(floor)
         self.normalise = bool(normalise)
+        self.check_carrier = bool(check_carrier) and self.normalise
         self.max_gain = 10 ** (-max_gain_db / 20)
         self.reset()
 
@@ -130,7 +135,7 @@ class CarrierNormaliser:
             cover = np.asarray(self._cover.process(v), dtype=np.float32)
             last_invalid = np.flatnonzero(v == 0)
             self._run = d.size - 1 - int(last_invalid[-1]) if last_invalid.size else self._run + d.size
-        if self.normalise:
+        if self.check_carrier:
             # level and mean square through one complex filter run (real taps: the real and imaginary
             # parts are filtered independently)
             pair = np.empty(d.size, np.complex64)
@@ -161,8 +166,11 @@ class CarrierNormaliser:
             # carrier present: the mean of the detector output is most of its RMS (1/sqrt(1 + m^2/2) >= 0.8
             # for a tone at m <= 1). Without a carrier (a coherent detector fed only noise, the mean near 0)
             # dividing by the mean would blow the noise up: divide by 3 x the RMS instead (noise at -10 dBFS).
-            rms = np.sqrt(np.maximum(power, np.float32(0)))
-            divisor = np.where(magnitude >= 0.5 * rms, magnitude, 3.0 * rms)
+            if power is not None:
+                rms = np.sqrt(np.maximum(power, np.float32(0)))
+                divisor = np.where(magnitude >= 0.5 * rms, magnitude, 3.0 * rms)
+            else:
+                divisor = magnitude
             np.maximum(divisor, np.maximum(running * np.float32(self.max_gain), np.float32(self.floor)), out=divisor)
             out /= divisor
         return out.astype(np.float32)
