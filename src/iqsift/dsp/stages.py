@@ -36,6 +36,7 @@ A one-shot function wraps each stage (:func:`mix`, :func:`fir_filter`,
 from __future__ import annotations
 
 import abc
+import functools
 import math
 import operator
 from fractions import Fraction
@@ -1094,6 +1095,21 @@ def agc(x, rate_hz: float, **kwargs) -> np.ndarray:
 # --------------------------------------------------------------------------
 
 
+@functools.lru_cache(maxsize=32)
+def _audio_bandpass_design(fs: float, lo: float, hi: float, tw: float, a: float):
+    """Kaiser's formulas are approximate: design, measure, raise the design attenuation by 0.5 dB
+    until the measured stop band meets ``a``. Cached: every channel of a plan usually asks the same."""
+    a_design = a
+    for _ in range(20):
+        taps, beta = AudioBandpass._design(fs, lo, hi, tw, a_design)
+        stop_db, ripple_db = AudioBandpass._measure(taps, fs, lo, hi, tw)
+        if stop_db <= -a:
+            break
+        a_design += 0.5
+    taps.setflags(write=False)
+    return taps, beta, a_design, stop_db, ripple_db
+
+
 class AudioBandpass(FirFilter):
     """Linear-phase Kaiser-window band-pass FIR for the voice band.
 
@@ -1147,15 +1163,7 @@ class AudioBandpass(FirFilter):
             raise ParameterError(
                 f"transition_hz: need 0 < tw < low_hz and high_hz + tw < rate/2, got {tw!r}"
             )
-        # Kaiser's formulas are approximate: design, measure, raise the design
-        # attenuation by 0.5 dB until the measured stop band meets atten_db.
-        a_design = a
-        for _ in range(20):
-            taps, beta = self._design(fs, lo, hi, tw, a_design)
-            stop_db, ripple_db = self._measure(taps, fs, lo, hi, tw)
-            if stop_db <= -a:
-                break
-            a_design += 0.5
+        taps, beta, a_design, stop_db, ripple_db = _audio_bandpass_design(fs, lo, hi, tw, a)
         self._low, self._high, self._atten, self._tw, self._beta = lo, hi, a, tw, float(beta)
         self._design_atten = a_design
         self._stop_db, self._ripple_db = stop_db, ripple_db
