@@ -103,3 +103,20 @@ def test_measure_cli_json(tmp_path, run_cli):
     assert r["bandwidth"]["occupied_hz"] == pytest.approx(2000, rel=0.03)
     assert r["audio"]["tone_hz"] == pytest.approx(1000, abs=0.1)
     assert len(r["activity"]) == 1
+
+
+def test_measure_channel_library_function(tmp_path):
+    # The library form of `iqsift measure` returns a typed result with the report vocabulary.
+    from iqsift import measure_channel, open_capture
+
+    n = int(1.0 * FS)
+    t = np.arange(n) / FS
+    x = 0.1 * (1 + 0.45 * np.cos(2 * np.pi * 800 * t)) * np.exp(2j * np.pi * (20e3 + 12.5) * t)
+    with SigMFWriter(tmp_path / "lib", FS, center_hz=100e6, datatype="cf32_le") as w:
+        w.write(x + noise(np.random.default_rng(3), n, 1e-9))
+    result = measure_channel(open_capture(tmp_path / "lib.sigmf-meta"), make_channel(freq="100.02M", bandwidth="6k"),
+                             tone_hz=800, start=0.1, duration=0.8)
+    assert result.carrier["error_hz"] == pytest.approx(12.5, abs=1.0)
+    assert result.modulation["depth_percent"] == pytest.approx(45, abs=1)  # Haykin
+    assert result.audio["tone_hz"] == pytest.approx(800, abs=0.1)
+    assert result.to_dict()["channel"]["name"] == result.channel["name"]

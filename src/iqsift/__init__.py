@@ -12,6 +12,7 @@ The public API, for scripts and test benches::
 
 __version__ = "0.1.0"
 
+from .analysis import ChannelMeasurement, measure_channel  # noqa: E402
 from .captures import Capture, SigMFWriter, AudioWriter, open_capture  # noqa: E402
 from .channel import Channel, make_channel  # noqa: E402
 from .emission import Emission, parse_emission  # noqa: E402
@@ -31,6 +32,7 @@ __all__ = [
     "Capture",
     "CaptureError",
     "Channel",
+    "ChannelMeasurement",
     "Emission",
     "InputError",
     "IqsiftError",
@@ -43,6 +45,7 @@ __all__ = [
     "__version__",
     "design_channel",
     "make_channel",
+    "measure_channel",
     "open_capture",
     "parse_emission",
     "parse_frequency",

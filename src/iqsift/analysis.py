@@ -25,6 +25,7 @@ numbers per frame or segment.
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
@@ -32,7 +33,7 @@ import numpy as np
 from . import measure
 from .spectra import WelchAccumulator
 
-__all__ = ["ChannelAnalyzer"]
+__all__ = ["ChannelAnalyzer", "ChannelMeasurement", "measure_channel"]
 
 AM_MODES = ("envelope", "coherent")
 
@@ -291,3 +292,81 @@ def _steady(windows: list[tuple[float, float, float, Any]], segments: list[tuple
     levels = np.array([w[2] for w in pool])
     ref = np.percentile(levels, 90)
     return [w[3] for w in pool if w[2] >= ref * 10 ** (-0.1)]
+
+
+@dataclass(frozen=True)
+class ChannelMeasurement:
+    """The result of :func:`measure_channel`: one attribute per report section (DESIGN.md vocabulary).
+
+    Attributes
+    ----------
+    channel : dict
+        ``name``, ``frequency_hz``, ``bandwidth_hz``, ``mode``, ``level_dbfs`` ...
+    carrier : dict or None
+        ``frequency_hz``, ``error_hz`` (measured − nominal), ``level_dbfs``; None for suppressed-carrier modes.
+    modulation : dict or None
+        ``depth_percent``, ``depth_positive_percent``, ``depth_negative_percent``, ``tone_hz`` (AM only).
+    bandwidth : dict or None
+        ``occupied_hz`` (99 %, ITU-R SM.328), ``x_db_hz`` with ``x_db``.
+    audio : dict or None
+        ``snr_db``, ``sinad_db``, ``thd_percent``, ``receiver_sinad_db`` (with a test tone only).
+    activity : list of dict
+        ``start_s``, ``end_s``, ``level_dbfs`` per segment.
+    report : dict
+        The whole report (design, delay, ... as well).
+    """
+
+    channel: dict
+    carrier: dict | None
+    modulation: dict | None
+    bandwidth: dict | None
+    audio: dict | None
+    activity: list
+    report: dict
+
+    def to_dict(self) -> dict[str, Any]:
+        """The JSON report."""
+        return self.report
+
+
+def measure_channel(
+    capture,
+    channel,
+    *,
+    tone_hz: float | None = None,
+    weighting: str = "none",
+    x_db: float = 26.0,
+    threshold_db: float = 10.0,
+    start=None,
+    duration=None,
+    nonfinite: str = "error",
+) -> ChannelMeasurement:
+    """Measure one channel of a capture in one streaming pass (the library form of ``iqsift measure``).
+
+    Parameters
+    ----------
+    capture : Capture
+        From :func:`iqsift.open_capture`.
+    channel : Channel
+        From :func:`iqsift.make_channel`.
+    tone_hz : float, optional
+        Test-tone frequency (Hz) for SNR/SINAD/THD (IEEE Std 1241).
+    weighting : {"none", "psophometric", "a"}
+        Noise weighting (ITU-T O.41, IEC 61672-1).
+    x_db : float
+        x of the x-dB bandwidth (dB).
+    threshold_db : float
+        Activity threshold above the noise floor (dB).
+    start, duration : seconds or str, optional
+        The window to analyse (see :meth:`Capture.select`).
+    """
+    from .receiver import Receiver
+
+    selection = capture.select(start, duration)
+    receiver = Receiver.for_capture(capture, channel, selection, agc=False).analyze(
+        tone_hz=tone_hz, weighting=weighting, x_db=x_db, activity={"threshold_db": threshold_db})
+    for _ in receiver.stream(capture.blocks(start=selection.start, count=selection.count, nonfinite=nonfinite)):
+        pass
+    report = receiver.report()
+    return ChannelMeasurement(report["channel"], report.get("carrier"), report.get("modulation"),
+                              report.get("bandwidth"), report.get("audio"), report.get("activity") or [], report)
