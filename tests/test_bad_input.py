@@ -160,3 +160,52 @@ def test_multichannel_sigmf_refused(run_cli, tmp_path):
 
 def test_unknown_option_is_one_line(run_cli, tmp_path):
     assert_one_line_error(run_cli("info", "x.wav", "--frobnicate"), "--frobnicate")
+
+
+def test_processing_commands_refuse_nan_and_leave_no_output(run_cli, tmp_path):
+    x = (0.1 * np.exp(2j * np.pi * 0.05 * np.arange(20000))).astype(np.complex64)
+    x[5000] = np.nan
+    meta = write_sigmf_pair(tmp_path / "n", x.tobytes(), {"core:datatype": "cf32_le", "core:sample_rate": 48000})
+    plan = tmp_path / "p.toml"
+    plan.write_text('[[channel]]\nname = "a"\noffset = "2400"\nbandwidth = "6k"\n')
+    for args in (["demod", meta, "--offset", "2400", "-o", tmp_path / "a.wav"],
+                 ["measure", meta, "--offset", "2400"],
+                 ["extract", meta, "--plan", plan, "--out-dir", tmp_path / "out"]):
+        assert_one_line_error(run_cli(*args), "n.sigmf-meta", "sample 5000 is NaN or infinite", "--allow-nonfinite")
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["n.sigmf-data", "n.sigmf-meta", "p.toml"]
+    status, _, _ = run_cli("demod", meta, "--offset", "2400", "-o", tmp_path / "a.wav", "--allow-nonfinite", "--quiet")
+    assert status == 0 and (tmp_path / "a.wav").exists()
+
+
+def test_an_input_is_never_overwritten_even_with_force(run_cli, tmp_path):
+    soundfile.write(tmp_path / "iq.wav", np.zeros((4800, 2)), 48000)
+    before = (tmp_path / "iq.wav").read_bytes()
+    assert_one_line_error(run_cli("demod", tmp_path / "iq.wav", "--offset", "1k", "-o", tmp_path / "iq.wav", "--force"),
+                          "iq.wav", "is an input")
+    meta = write_sigmf_pair(tmp_path / "g", np.zeros(9600, "<f4").tobytes(),
+                            {"core:datatype": "cf32_le", "core:sample_rate": 48000})
+    assert_one_line_error(run_cli("demod", meta, "--offset", "1k", "-o", tmp_path / "x.wav", "--baseband", meta,
+                                  "--force"), "is an input")
+    assert (tmp_path / "iq.wav").read_bytes() == before
+
+
+def test_annotation_fields_of_the_wrong_type(run_cli, tmp_path):
+    meta = write_sigmf_pair(tmp_path / "a", b"\0" * 400, GOOD_GLOBAL,
+                            annotations=[{"core:sample_start": 0, "core:freq_lower_edge": "abc",
+                                          "core:freq_upper_edge": 1e6}])
+    assert_one_line_error(run_cli("info", meta), "a.sigmf-meta", "core:freq_lower_edge", "finite number")
+    meta = write_sigmf_pair(tmp_path / "f", b"\0" * 400, GOOD_GLOBAL,
+                            captures=[{"core:sample_start": 0, "core:frequency": "127M"}])
+    assert_one_line_error(run_cli("info", meta), "f.sigmf-meta", "core:frequency")
+
+
+def test_spectra_folder_is_checked_before_any_work(run_cli, tmp_path):
+    meta = write_sigmf_pair(tmp_path / "s", np.zeros(96000, "<f4").tobytes(),
+                            {"core:datatype": "cf32_le", "core:sample_rate": 48000})
+    (tmp_path / "sp").mkdir()
+    (tmp_path / "sp" / "overview.png").write_bytes(b"old")
+    assert_one_line_error(run_cli("demod", meta, "--offset", "1k", "-o", tmp_path / "a.wav", "--spectra",
+                                  tmp_path / "sp"), "overview.png", "--force")
+    assert not (tmp_path / "a.wav").exists()
+    assert_one_line_error(run_cli("demod", meta, "--offset", "1k", "-o", tmp_path / "a.wav", "--spectra",
+                                  tmp_path / "no" / "sp"), "does not exist")

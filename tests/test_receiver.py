@@ -197,3 +197,44 @@ def test_chunked_equals_one_shot(cuts):
 def test_channel_outside_the_capture_is_refused():
     with pytest.raises(ParameterError, match="outside the capture band"):
         Receiver(FS, make_channel(freq="100.118M", bandwidth="6k"), center_hz=100e6)
+
+
+def test_squelch_mutes_noise_between_transmissions():
+    # Squelch (common practice in radio receivers): between push-to-talk bursts the audio is muted; inside
+    # the bursts the message is untouched.
+    rng = np.random.default_rng(11)
+    n = int(3.0 * FS)
+    t = np.arange(n) / FS
+    gate = ((t > 0.5) & (t < 1.4)) | ((t > 2.0) & (t < 2.8))
+    x = gate * am(t, 15000.0, 0.05, 0.8) + complex_noise(rng, n, 1e-7)
+    loud, _ = receive(x, make_channel(offset=15000.0, bandwidth="6k"))
+    quiet, _ = receive(x, make_channel(offset=15000.0, bandwidth="6k", squelch_db=10))
+    idle = slice(int(1.6 * AUDIO), int(1.9 * AUDIO))
+    busy = slice(int(0.7 * AUDIO), int(1.3 * AUDIO))
+    assert np.sqrt(np.mean(quiet[idle] ** 2)) < 1e-3 < np.sqrt(np.mean(loud[idle] ** 2))
+    np.testing.assert_allclose(quiet[busy], loud[busy], atol=1e-6)
+
+
+@pytest.mark.parametrize("rate", [32e3, 48e3, 256e3, 1.024e6, 2.048e6, 2.4e6, 3.2e6, 8.192e6])
+@pytest.mark.parametrize("emission", ["6K00A3E", "2K70J3E", "8K00A3E"])
+def test_common_capture_rates_get_a_chain(rate, emission):
+    # Every common SDR rate, including those where the channel rate equals the audio rate (no resampling).
+    from iqsift.receiver import design_channel
+
+    design = design_channel(rate, make_channel(offset=0, emission=emission))
+    assert design.resampler.rate_out_hz == pytest.approx(16000.0)
+    assert design.prototype.measured_atten_db >= 80.0
+
+
+def test_channel_rate_equal_to_audio_rate_recovers_audio():
+    fs = 256e3  # channel rate 16 kS/s = the audio rate
+    n = int(0.8 * fs)
+    t = np.arange(n) / fs
+    audio, rx = receive(am(t, 40e3, 0.1, 0.8), make_channel(offset=40e3, bandwidth="6k"), rate=fs)
+    assert rx.design.channel_rate_hz == AUDIO
+    assert message_snr_db(audio, message(np.arange(audio.size) / AUDIO)) >= 50
+
+
+def test_too_short_input_warns():
+    with pytest.warns(UserWarning, match="fewer than the receiver needs to settle"):
+        receive(np.ones(20, np.complex64), make_channel(offset=0, bandwidth="6k"))

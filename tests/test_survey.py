@@ -222,7 +222,7 @@ def test_survey_finds_every_emission_with_accurate_frequencies(tmp_path, seed):
     assert strong.designator == "6K00A3E" and strong.confidence == "high"
     wide = _nearest(found, centre + truth[1]["offset"])
     assert wide.occupied_hz == pytest.approx(predicted(4500.0), rel=0.02)  # 7982 Hz
-    assert wide.designator in ("8K00A3E", "8K50A3E")  # rounded up to 500 Hz
+    assert wide.designator == "9K00A3E"  # ITU-R SM.1138: A3E necessary bandwidth 2M, M = 4500 Hz -> 9000 Hz
     # Noise floor: the generated -100 dBFS/Hz.
     assert result.noise_floor_dbfs_per_hz == pytest.approx(-100.0, abs=0.15)
     # DC offset: reported separately, its level from the sample mean.

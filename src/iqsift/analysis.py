@@ -37,6 +37,10 @@ __all__ = ["ChannelAnalyzer", "ChannelMeasurement", "measure_channel"]
 
 AM_MODES = ("envelope", "coherent")
 
+_NO_RESULT = (ValueError, ArithmeticError, np.linalg.LinAlgError)
+"""What a measurement raises when the data cannot give a result (too short, no tone, no carrier): the
+section is then reported empty. Anything else is a bug and propagates."""
+
 
 class ChannelAnalyzer:
     """Accumulate the measurements of one channel.
@@ -68,6 +72,8 @@ class ChannelAnalyzer:
         percentile and the spectral estimate (:meth:`noise_floor_dbfs`).
     passband_hz : tuple, optional
         The channel's passband relative to the carrier (Hz), for the spectral noise-floor estimate.
+    time_offset_s : float
+        Capture time of the first sample fed (s): activity times are reported as capture times.
     """
 
     def __init__(
@@ -84,6 +90,7 @@ class ChannelAnalyzer:
         window_s: float = 0.5,
         activity: dict | None = None,
         passband_hz: tuple[float, float] | None = None,
+        time_offset_s: float = 0.0,
     ) -> None:
         self.rate = float(channel_rate_hz)
         self.audio_rate = float(audio_rate_hz)
@@ -101,16 +108,20 @@ class ChannelAnalyzer:
         self.activity = measure.ActivityTracker(self.rate, 0.01, **self._activity_options)
         self.passband_hz = passband_hz if passband_hz is not None else (-bandwidth_hz / 2, bandwidth_hz / 2)
         self.noise_floor_used_dbfs = None
+        self.notes: list[str] = []
+        self.time_offset_s = float(time_offset_s)
         self._win = max(1, int(round(window_s * self.rate)))
         self._awin = max(1, int(round(window_s * self.audio_rate)))
         self._audio_levels: list[float] = []
         self._env: list[np.ndarray] = []
         self._env_n = 0
         self._env_t = 0
+        self._env_skip = int(round(EDGE_GUARD_S * self.rate))
         self._depths: list[tuple[float, Any]] = []
         self._aud: list[np.ndarray] = []
         self._aud_n = 0
         self._aud_t = 0
+        self._aud_skip = int(round(EDGE_GUARD_S * self.audio_rate))
         self._quality: list[Any] = []
 
     # -- feeding -------------------------------------------------------
@@ -123,8 +134,13 @@ class ChannelAnalyzer:
         self.spectrum.feed(z)
         self.activity.feed(z)
         if self.is_am:
-            self._env.append(np.abs(z).astype(np.float64))
-            self._env_n += z.size
+            env = np.abs(z).astype(np.float64)
+            skip = min(env.size, self._env_skip)  # the run's start (filters filling) is not analysed
+            self._env_skip -= skip
+            self._env_t += skip
+            if env.size > skip:
+                self._env.append(env[skip:])
+                self._env_n += env.size - skip
             while self._env_n >= self._win:
                 self._depth_window()
 
@@ -132,8 +148,13 @@ class ChannelAnalyzer:
         """Audio block (float)."""
         if self.tone_hz is None or a.size == 0:
             return
-        self._aud.append(np.asarray(a, dtype=np.float64))
-        self._aud_n += a.size
+        a = np.asarray(a, dtype=np.float64)
+        skip = min(a.size, self._aud_skip)  # the run's start (filters filling, fade-in) is not analysed
+        self._aud_skip -= skip
+        self._aud_t += skip
+        if a.size > skip:
+            self._aud.append(a[skip:])
+            self._aud_n += a.size - skip
         while self._aud_n >= self._awin:
             self._audio_window()
 
@@ -151,7 +172,7 @@ class ChannelAnalyzer:
         level = float(np.mean(window**2))
         try:
             result = measure.measure_depth(window, self.rate)
-        except Exception:  # a window without modulation or carrier: no depth from it
+        except _NO_RESULT:  # a window without modulation or carrier: no depth from it
             return
         t1 = self._env_t / self.rate
         self._depths.append((t1 - window.size / self.rate, t1, level, result))
@@ -165,7 +186,7 @@ class ChannelAnalyzer:
             return
         try:
             quality = measure.audio_quality(window, self.audio_rate, tone_hz=self.tone_hz, weighting=self.weighting)
-        except Exception:
+        except _NO_RESULT:
             return
         t1 = self._aud_t / self.audio_rate
         self._quality.append((t1 - window.size / self.audio_rate, t1, float(np.mean(window**2)), quality))
@@ -178,14 +199,22 @@ class ChannelAnalyzer:
         if self._aud_n:
             self._audio_window(final=True)
         out: dict[str, Any] = {}
+        self.notes = []
         segments = self._activity_segments()
         self._segments = [(seg.start_s, seg.end_s) for seg in segments]
         out["carrier"] = self._carrier_section()
         out["modulation"] = self._modulation_section()
         out["bandwidth"] = self._bandwidth_section()
         out["audio"] = self._audio_section()
-        out["activity"] = [seg.to_dict() for seg in segments]
+        out["activity"] = []
+        for seg in segments:
+            entry = seg.to_dict()
+            entry["start_s"] += self.time_offset_s
+            entry["end_s"] += self.time_offset_s
+            out["activity"].append(entry)
         out["noise_floor_dbfs"] = self.noise_floor_used_dbfs
+        if self.notes:
+            out["notes"] = list(self.notes)
         return out
 
     def noise_floor_dbfs(self) -> float | None:
@@ -223,7 +252,7 @@ class ChannelAnalyzer:
             return None
         try:
             c = self.carrier.result()
-        except Exception:
+        except _NO_RESULT:
             return None
         d = c.to_dict()
         if not c.detected:
@@ -239,21 +268,26 @@ class ChannelAnalyzer:
 
     def _modulation_section(self) -> dict[str, Any] | None:
         if not self._depths:
+            self.notes.append("modulation: no analysis window of "
+                              f"{self._win / self.rate:g} s fits the selection and the carrier's activity")
             return None
-        chosen = _steady(self._depths, self._segments)
+        chosen = _steady(self._depths, self._segments, self._env_t / self.rate)
+        if not chosen:
+            self.notes.append("modulation: every analysis window touches the start or end of the run")
+            return None
+        # one representative window (the median depth), so that every figure comes from one measurement
+        order = np.argsort([r.depth_percent for r in chosen])
+        rep = chosen[int(order[len(order) // 2])]
         depth = np.array([r.depth_percent for r in chosen])
-        pos = np.array([r.depth_positive_percent for r in chosen])
-        neg = np.array([r.depth_negative_percent for r in chosen])
-        tone = np.array([r.tone_hz for r in chosen], dtype=float)
         return {
-            "depth_percent": float(np.median(depth)),
-            "depth_positive_percent": float(np.median(pos)),
-            "depth_negative_percent": float(np.median(neg)),
-            "tone_hz": float(np.nanmedian(tone)) if np.isfinite(tone).any() else None,
+            "depth_percent": rep.depth_percent,
+            "depth_positive_percent": rep.depth_positive_percent,
+            "depth_negative_percent": rep.depth_negative_percent,
+            "tone_hz": rep.tone_hz,
             "depth_percent_range": [float(depth.min()), float(depth.max())],
             "windows": len(chosen),
             "window_s": self._win / self.rate,
-            "method": f"median over {len(chosen)} window(s) of {self._win / self.rate:g} s; {chosen[0].method}",
+            "method": f"the median window of {len(chosen)} steady window(s) of {self._win / self.rate:g} s; {rep.method}",
         }
 
     def _bandwidth_section(self) -> dict[str, Any] | None:
@@ -264,31 +298,47 @@ class ChannelAnalyzer:
         psd = 10 ** (np.asarray(spec.values_db) / 10)
         try:
             bw = measure.measure_bandwidth(freqs, psd, 0.99, self.x_db).to_dict()
-        except Exception:
+        except _NO_RESULT:
             return None
         bw["note"] = "measured on the channel baseband (after the channel filter), relative to the tuned carrier"
         return bw
 
     def _audio_section(self) -> dict[str, Any] | None:
-        if not self._quality:
+        if self.tone_hz is None:
             return None
-        keys = ("snr_db", "sinad_db", "thd_percent", "thd_db", "receiver_sinad_db", "tone_hz")
-        chosen = _steady(self._quality, self._segments)
-        out: dict[str, Any] = {}
-        for key in keys:
-            values = np.array([getattr(q, key) for q in chosen], dtype=float)
-            out[key] = float(np.nanmedian(values)) if np.isfinite(values).any() else None
+        chosen = _steady(self._quality, self._segments, self._aud_t / self.audio_rate) if self._quality else []
+        if not chosen:
+            self.notes.append("audio: no steady analysis window of "
+                              f"{self._awin / self.audio_rate:g} s inside the run and the channel's activity")
+            return None
+        # one representative window (the median SINAD): SNR, SINAD and THD come from the same measurement
+        order = np.argsort([q.sinad_db for q in chosen])
+        rep = chosen[int(order[len(order) // 2])]
+        out: dict[str, Any] = {key: getattr(rep, key) for key in
+                               ("snr_db", "sinad_db", "thd_percent", "thd_db", "receiver_sinad_db", "tone_hz")}
+        sinad = np.array([q.sinad_db for q in chosen], dtype=float)
+        out["sinad_db_range"] = [float(np.nanmin(sinad)), float(np.nanmax(sinad))]
         out["weighting"] = self.weighting
         out["windows"] = len(chosen)
+        out["window_s"] = self._awin / self.audio_rate
         out["sinad_definition"] = "IEEE Std 1241 S/(N+D); receiver_sinad_db is (S+N+D)/(N+D)"
         return out
 
 
-def _steady(windows: list[tuple[float, float, float, Any]], segments: list[tuple[float, float]]) -> list[Any]:
-    """Results of the steady windows: those lying inside one activity segment (10 ms margin) and, among
-    them, whose mean power is within 1 dB of the 90th percentile; all windows when no segment holds one."""
-    inside = [w for w in windows if any(a - 0.01 <= w[0] and w[1] <= b + 0.01 for a, b in segments)]
-    pool = inside or windows
+EDGE_GUARD_S = 0.05
+"""Windows closer than this to the start or end of a run are not used: the receiver's filters are still
+filling there and its audio is faded over the first and last 5 ms."""
+
+
+def _steady(windows: list[tuple[float, float, float, Any]], segments: list[tuple[float, float]],
+            run_s: float) -> list[Any]:
+    """Results of the steady windows: away from the run's ends (EDGE_GUARD_S), inside one activity segment
+    (10 ms margin) when any window is, and with a mean power within 1 dB of the 90th percentile."""
+    pool = [w for w in windows if w[0] >= EDGE_GUARD_S and w[1] <= run_s - EDGE_GUARD_S]
+    if not pool:
+        return []
+    inside = [w for w in pool if any(a - 0.01 <= w[0] and w[1] <= b + 0.01 for a, b in segments)]
+    pool = inside or pool
     levels = np.array([w[2] for w in pool])
     ref = np.percentile(levels, 90)
     return [w[3] for w in pool if w[2] >= ref * 10 ** (-0.1)]
@@ -364,7 +414,8 @@ def measure_channel(
 
     selection = capture.select(start, duration)
     receiver = Receiver.for_capture(capture, channel, selection, agc=False).analyze(
-        tone_hz=tone_hz, weighting=weighting, x_db=x_db, activity={"threshold_db": threshold_db})
+        tone_hz=tone_hz, weighting=weighting, x_db=x_db, activity={"threshold_db": threshold_db},
+        time_offset_s=selection.start / capture.sample_rate_hz)
     for _ in receiver.stream(capture.blocks(start=selection.start, count=selection.count, nonfinite=nonfinite)):
         pass
     report = receiver.report()

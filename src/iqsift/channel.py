@@ -63,7 +63,9 @@ class Channel:
     audio_band_hz : tuple or None or str
         Audio band-pass (low, high) in Hz, ``None`` for none, ``"auto"`` for the default rule.
     squelch_db : float or None
-        Squelch threshold above the noise floor (dB), for extraction reports.
+        Squelch: audio is muted while the channel level is less than this many dB above the noise
+        floor (:class:`iqsift.dsp.post.Squelch`); also the activity threshold of the report.
+        None: no squelch, the audio carries the noise between transmissions.
     """
 
     bandwidth_hz: float

@@ -73,6 +73,8 @@ class Extractor:
         Accumulate stage spectra per channel (the input spectrum is shared).
     analyze : bool
         Measure every channel (carrier, depth, bandwidth, activity).
+    time_offset_s : float
+        Capture time of the first sample fed (s), so activity is reported in capture time.
     workers : int or None
         Threads for the bank's transforms (None: all CPUs, up to 4).
 
@@ -96,6 +98,7 @@ class Extractor:
         spectra: bool = False,
         analyze: bool = True,
         workers: int | None = None,
+        time_offset_s: float = 0.0,
     ) -> None:
         if not channels:
             raise ParameterError("no channels to extract")
@@ -135,7 +138,7 @@ class Extractor:
                 options = {}
                 if rx.channel.squelch_db is not None:
                     options["activity"] = {"threshold_db": rx.channel.squelch_db}
-                rx.analyze(**options)
+                rx.analyze(time_offset_s=time_offset_s, **options)
         self.samples_in = 0
 
     @property

@@ -27,6 +27,8 @@ is left of it (below one audio sample) are reported.
 from __future__ import annotations
 
 import math
+import warnings
+from fractions import Fraction
 from dataclasses import dataclass, field
 from typing import Any, Iterator
 
@@ -36,9 +38,9 @@ from .channel import Channel
 from .dsp.channelizer import BankChannel, FastConvChannelizer, choose_fft_size, power_of_two_decimation
 from .dsp.design import LowpassDesign, design_lowpass, design_resampler, plan_decimation
 from .dsp.detectors import make_detector
-from .dsp.post import CarrierNormaliser, DelayTrim, FractionalDelay, _long_fft
+from .dsp.post import CarrierNormaliser, DelayTrim, FractionalDelay, Squelch, _long_fft
 from .dsp.stages import AGC, AudioBandpass, FirDecimator, FirFilter, Mixer, RationalResampler
-from .errors import ParameterError
+from .errors import IqsiftWarning, ParameterError
 
 __all__ = ["ChannelDesign", "design_channel", "ChannelBackEnd", "Receiver", "ReceiverResult", "TAP_NAMES"]
 
@@ -287,6 +289,10 @@ def design_channel(
     # below the lower Nyquist frequency): a transition about twice as wide, half the taps.
     low = min(ch_rate, audio_rate)
     res_stop = max(low / 2, low - audio_top)
+    # ... but inside the band of the filter's own rate (rate_in x up); with equal rates (up = down = 1) that
+    # is simply the Nyquist frequency of the channel rate
+    up = Fraction(audio_rate / ch_rate).limit_denominator(1000).numerator
+    res_stop = min(res_stop, 0.5 * ch_rate * up)
     # the audio resampler gets a tighter ripple than the channel filter: with 0.1 dB peak-to-peak an
     # equiripple design alone would limit the message SNR to about 45 dB
     # (Kaiser: one design and one verification; the resampler runs at the channel rate, so the few extra
@@ -508,6 +514,8 @@ class ChannelBackEnd:
         self.taps = taps or {}
         self.on_baseband = None  # optional callable receiving each channel baseband block (e.g. a SigMF writer)
         self.analyzer = None  # optional iqsift.analysis.ChannelAnalyzer
+        # mute the audio while the channel holds only noise (Channel.squelch_db dB above the floor)
+        self.squelch = Squelch(rate, ch.squelch_db) if ch.squelch_db is not None else None
         self.reset_levels()
 
     def reset_levels(self) -> None:
@@ -572,6 +580,8 @@ class ChannelBackEnd:
             self.on_baseband(baseband)
         if self.analyzer is not None and baseband.size and count_level:
             self.analyzer.feed_baseband(baseband)
+        if self.squelch is not None and baseband.size and count_level:
+            self.squelch.feed(baseband)
         return self._post(self.detector.process(baseband), final=False)
 
     def flush(self) -> np.ndarray:
@@ -782,6 +792,10 @@ class Receiver:
 
     def _emit(self, audio: np.ndarray, at_end: bool = False) -> np.ndarray:
         audio = self._fade(audio, at_end)
+        squelch = self.back.squelch
+        if squelch is not None and audio.size:
+            times = (self.audio_out + np.arange(audio.size)) / self.audio_rate_hz
+            audio = audio * squelch.gain(times)
         if self.back.analyzer is not None and audio.size:
             self.back.analyzer.feed_audio(audio)
         tap = self.taps.get("audio")
@@ -815,6 +829,12 @@ class Receiver:
     def finish_baseband(self, tail: np.ndarray, flushed: np.ndarray) -> np.ndarray:
         """Finish from the front end's output for the end padding (``tail``) and its flush."""
         expected = int(round(self.samples_in * self.audio_rate_hz / self.rate_hz))
+        settle = int(math.ceil(self.back.delay_s * self.rate_hz))
+        if self.samples_in < settle:
+            warnings.warn(
+                f"channel {self.channel.name!r}: {self.samples_in} input samples are fewer than the receiver needs "
+                f"to settle ({settle} samples, {self.back.delay_s * 1e3:.1f} ms); the audio and the level are "
+                "mostly filter start-up", IqsiftWarning)
         # baseband samples that still belong to the input (the front end emits ceil(n / D) of them)
         real_left = -(-self.samples_in // self.design.decimation) - self.back.baseband_samples
         real_left = max(0, min(real_left, tail.size))
@@ -866,7 +886,7 @@ class Receiver:
         for name, acc in self.spectrograms.items():
             try:
                 out[name] = acc.result()
-            except Exception:  # fewer samples than one segment
+            except ValueError:  # fewer samples than one segment (ParameterError)
                 continue
         return out
 

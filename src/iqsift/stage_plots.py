@@ -16,7 +16,7 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["write_stage_plots", "stage_overlays"]
+__all__ = ["write_stage_plots", "stage_overlays", "stage_plot_names", "check_stage_plot_folder"]
 
 _TITLES = {
     "input": "input around the channel (capture, before any processing)",
@@ -24,6 +24,33 @@ _TITLES = {
     "detector": "detector output",
     "audio": "audio",
 }
+
+
+def stage_plot_names(fmt: str) -> list[str]:
+    """Every file name :func:`write_stage_plots` may write into its folder."""
+    names = []
+    for i, name in enumerate(("input", "channel", "detector", "audio")):
+        names += [f"{i + 1}_{name}.{fmt}", f"{i + 1}_{name}.json"]
+    names += [f"overview.{fmt}", f"waveform.{fmt}"]
+    for name in ("channel", "audio"):
+        names += [f"spectrogram_{name}.{fmt}", f"spectrogram_{name}.json"]
+    return names
+
+
+def check_stage_plot_folder(folder: Path, fmt: str, force: bool, create: bool = True) -> None:
+    """Before any work: the folder's parent must exist, and no plot file may be overwritten without force."""
+    from .captures.atomic import check_output_path
+    from .errors import ParameterError
+
+    folder = Path(folder)
+    if folder.exists() and not folder.is_dir():
+        raise ParameterError(f"{folder}: exists and is not a folder")
+    parent = folder.parent if str(folder.parent) else Path(".")
+    if not parent.is_dir():
+        raise ParameterError(f"{folder}: the folder {parent} does not exist")
+    if folder.is_dir():
+        for name in stage_plot_names(fmt):
+            check_output_path(folder / name, force)
 
 
 def stage_overlays(receiver) -> dict[str, Any]:
@@ -75,7 +102,7 @@ def write_stage_plots(receiver, out_dir: Path, *, capture_name: str, fmt: str = 
     from . import plots
 
     out_dir = Path(out_dir)
-    out_dir.mkdir(parents=True, exist_ok=True)
+    out_dir.mkdir(parents=True, exist_ok=True)  # callers have checked that the user's folder's parent exists
     spectra = receiver.spectra("density")
     if not spectra:
         return []

@@ -1039,12 +1039,20 @@ def _round_up(value: float, step: float) -> float:
     return float(math.ceil(value / step - 1e-9) * step)
 
 
+_AM_WIDTHS_HZ = (6000.0, 8000.0, 9000.0, 10000.0, 12000.0, 16000.0, 20000.0)
+"""Usual double-sideband telephony/broadcast necessary bandwidths (6K00A3E voice; 8K00-10K0A3E sound
+broadcasting, ITU-R SM.1138 with M = 4-5 kHz; wider ones for completeness), common practice."""
+
+
 def _channel_width(cls: str, needed_hz: float) -> float:
     if cls == "A3E":
-        step = 500.0 if needed_hz <= 20_000.0 else 1000.0
-    else:
-        step = 100.0
-    return max(_MIN_CHANNEL_HZ[cls], _round_up(max(needed_hz, 1.0), step))
+        # the measured extent carries some spread (window leakage, filter skirts): 5 % grace before the
+        # next usual width
+        for width in _AM_WIDTHS_HZ:
+            if needed_hz <= 1.05 * width:
+                return width
+        return _round_up(needed_hz, 1000.0)
+    return max(_MIN_CHANNEL_HZ[cls], _round_up(max(needed_hz, 1.0), 100.0))
 
 
 def _measure(sv: Surveyor, g: _Group, ctx: _Ctx, index: int) -> Emission:
@@ -1139,10 +1147,12 @@ def _measure(sv: Surveyor, g: _Group, ctx: _Ctx, index: int) -> Emission:
                 note = f"carrier line, sidebands unequal ({ratio_db:+.1f} dB upper/lower)"
         assert carrier_rel is not None
         freq_rel = carrier_rel
-        if cls == "A3E":
-            needed = 2.0 * max(carrier_rel - occ_lo, occ_hi - carrier_rel, 0.0)
-        else:
-            needed = max(carrier_rel - occ_lo, occ_hi - carrier_rel, 0.0)
+        # the 99 % band of voice AM hugs the carrier (the carrier holds nearly all the power), so the
+        # channel is sized from the detected band's extent instead (its sidebands above the noise), less
+        # the window's spread of about two bins on each side
+        reach_hz = max(carrier_rel - f[g.ext_lo], f[g.ext_hi] - carrier_rel, 0.0) - 2.0 * df
+        reach_hz = max(reach_hz, carrier_rel - occ_lo, occ_hi - carrier_rel, 0.0)
+        needed = 2.0 * reach_hz if cls == "A3E" else reach_hz
     else:
         carrier_level = None
         width = max(occ_hi - occ_lo, df)

@@ -1579,12 +1579,17 @@ def write_synth(scenario: Scenario | Mapping[str, Any] | str | os.PathLike, out_
     scen = _as_scenario(scenario)
     synth = Synthesizer(scen)
     truth = synth.truth
+    if not str(out_meta_path).endswith((".sigmf-meta", ".sigmf-data")):
+        raise ParameterError(f"{out_meta_path}: the output is a SigMF recording; name it OUT.sigmf-meta")
     meta_path, data_path = sigmf_paths(out_meta_path)
     truth_path = truth_path_for(out_meta_path)
+    inputs = [Path(scen.source)] if scen.source and Path(str(scen.source)).exists() else []
+    inputs += [Path(ch.message.resolved_path) for ch in scen.channels
+               if getattr(ch.message, "resolved_path", None)]
     description = scen.description or (
         f"iqsift synthetic test capture (invented scenario): {len(scen.channels)} channel(s), seed {scen.seed}"
     )
-    with OutputSet(force=force) as outputs:
+    with OutputSet(force=force, protect=tuple(inputs)) as outputs:
         truth_tmp = outputs.reserve(truth_path)
         writer = SigMFWriter(
             meta_path, scen.sample_rate_hz, center_hz=scen.center_hz, datatype=scen.datatype,

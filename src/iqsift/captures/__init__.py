@@ -4,7 +4,7 @@ from .atomic import OutputSet, check_output_path
 from .audio import AudioWriter
 from .capture import DEFAULT_BLOCK_SIZE, Annotation, Capture, SampleRange, Segment
 from .datatypes import ALL_DATATYPES, DataType, parse_datatype
-from .open import capture_kind, open_capture
+from .open import capture_kind, input_files, open_capture
 from .sigmf import SIGMF_VERSION, SigMFWriter, sigmf_paths
 from .stats import CaptureStats, StatsAccumulator
 
@@ -23,6 +23,7 @@ __all__ = [
     "SigMFWriter",
     "StatsAccumulator",
     "capture_kind",
+    "input_files",
     "check_output_path",
     "open_capture",
     "parse_datatype",

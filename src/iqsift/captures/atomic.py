@@ -27,17 +27,30 @@ def _current_umask() -> int:
 _UMASK = _current_umask()
 
 
-def check_output_path(path: str | os.PathLike, force: bool = False) -> Path:
+def check_output_path(path: str | os.PathLike, force: bool = False, protect: tuple = ()) -> Path:
     """Validate an output path before any work starts.
+
+    Parameters
+    ----------
+    path : path
+        The output.
+    force : bool
+        Allow overwriting an existing file.
+    protect : sequence of paths
+        The command's inputs: never overwritten, not even with ``force``.
 
     Raises
     ------
     OutputExistsError
         If the file exists and ``force`` is false.
     ParameterError
-        If the path is a directory or its folder does not exist.
+        If the path is a directory, its folder does not exist, or it is one of the inputs.
     """
     path = Path(path)
+    if protect and path.exists():
+        target = path.resolve()
+        if any(target == Path(p).resolve() for p in protect):
+            raise ParameterError(f"{path}: is an input of this command; refusing to overwrite it, even with --force")
     if path.is_dir():
         raise ParameterError(f"{path}: is a directory; give a file name for the output")
     parent = path.parent if str(path.parent) else Path(".")
@@ -60,6 +73,8 @@ class OutputSet:
     ----------
     force : bool
         Overwrite existing files.
+    protect : sequence of paths
+        Inputs of the job (capture files, plan ...): refused as outputs even with ``force``.
 
     Examples
     --------
@@ -68,14 +83,15 @@ class OutputSet:
     ...     write_audio(tmp)
     """
 
-    def __init__(self, force: bool = False) -> None:
+    def __init__(self, force: bool = False, protect: tuple = ()) -> None:
         self.force = force
+        self.protect = tuple(protect)
         self._pending: list[tuple[Path, Path]] = []
         self._committed: list[Path] = []
 
     def reserve(self, path: str | os.PathLike) -> Path:
         """Check ``path`` and return a temporary path in the same folder to write to."""
-        final = check_output_path(path, self.force)
+        final = check_output_path(path, self.force, self.protect)
         if any(final.resolve() == f.resolve() for f, _ in self._pending):
             raise ParameterError(f"{final}: named twice as an output")
         handle, tmp = tempfile.mkstemp(prefix=f".{final.stem}.", suffix=f".part{final.suffix}", dir=final.parent or ".")

@@ -175,19 +175,28 @@ class Capture:
 
     # -- metadata -------------------------------------------------------
     @property
+    def files(self) -> tuple[Path, ...]:
+        """Every file this capture reads (metadata and data), for refusing them as outputs."""
+        files = [self.path]
+        source_path = getattr(self._source, "path", None)
+        if source_path is not None and Path(source_path) != self.path:
+            files.append(Path(source_path))
+        return tuple(files)
+
+    @property
     def duration_s(self) -> float:
         """Length of the capture in seconds."""
         return self.samples / self.sample_rate_hz
 
     @property
     def center_hz(self) -> float | None:
-        """Centre frequency (Hz) of the first segment; None when unknown.
+        """Centre frequency (Hz) of the first segment that states one; None when unknown.
 
         For a real-valued capture this is the RF frequency that sample
         frequency 0 Hz stands for (0 when not given), so absolute frequencies
         are ``center_hz + offset`` for both kinds of capture.
         """
-        return self.segments[0].frequency_hz if self.segments else None
+        return next((seg.frequency_hz for seg in self.segments if seg.frequency_hz is not None), None)
 
     def __repr__(self) -> str:
         return (
@@ -341,7 +350,7 @@ class Capture:
                         first_bad = position + int(np.argmin(finite))
                         raise CaptureError(
                             f"{self.path}: sample {first_bad} is NaN or infinite; "
-                            "pass --allow-nonfinite (nonfinite='zero') to replace such samples with 0"
+                            "pass --allow-nonfinite to replace such samples with 0"
                         )
                     block = np.where(finite, block, np.complex64(0))
             yield block

@@ -12,7 +12,7 @@ from .capture import Capture
 from .raw import read_raw
 from .sigmf import read_sigmf, read_sigmf_archive
 
-__all__ = ["open_capture", "capture_kind"]
+__all__ = ["open_capture", "capture_kind", "input_files"]
 
 
 def capture_kind(path: str | os.PathLike) -> str:
@@ -25,6 +25,16 @@ def capture_kind(path: str | os.PathLike) -> str:
     if Path(name).suffix in AUDIO_FORMATS:
         return "audio"
     return "raw"
+
+
+def input_files(path: str | os.PathLike) -> tuple[Path, ...]:
+    """The files a capture path stands for (both files of a SigMF pair), without opening anything."""
+    path = Path(path)
+    if capture_kind(path) == "sigmf":
+        from .sigmf import sigmf_paths
+
+        return tuple(sigmf_paths(path))
+    return (path,)
 
 
 def open_capture(

@@ -16,6 +16,7 @@ from __future__ import annotations
 import datetime as _dt
 import hashlib
 import json
+import math
 import os
 import tarfile
 import warnings
@@ -67,6 +68,10 @@ def _load_meta_text(text: bytes, where: str) -> dict[str, Any]:
     if not isinstance(meta, dict) or not isinstance(meta.get("global"), dict):
         raise CaptureError(f"{where}: metadata has no 'global' object; is this a SigMF .sigmf-meta file?")
     return meta
+
+
+def _finite_number(value: Any) -> bool:
+    return not isinstance(value, bool) and isinstance(value, (int, float)) and math.isfinite(value)
 
 
 def _int_field(obj: dict, key: str, where: str, default: int | None = None) -> int | None:
@@ -122,8 +127,8 @@ def _parse_meta(
         starts.append(start)
         headers.append(_int_field(cap, "core:header_bytes", f"{where}: captures[{i}]", 0))
         freq = cap.get("core:frequency")
-        if freq is not None and (isinstance(freq, bool) or not isinstance(freq, (int, float))):
-            raise CaptureError(f"{where}: captures[{i}] core:frequency must be a number (Hz), got {freq!r}")
+        if freq is not None and not _finite_number(freq):
+            raise CaptureError(f"{where}: captures[{i}] core:frequency must be a finite number (Hz), got {freq!r}")
     trailing = _int_field(glob, "core:trailing_bytes", where, 0) or 0
 
     payload = data_bytes - trailing - sum(headers)
@@ -148,6 +153,9 @@ def _parse_meta(
 
     if not captures:
         captures, starts, headers = [{}], [0], [0]
+    elif starts[0] > 0:
+        # samples before the first capture segment: a segment of their own, with nothing known about them
+        captures, starts, headers = [{}] + list(captures), [0] + starts, [0] + headers
     segments, runs = [], []
     byte = 0
     for i, start in enumerate(starts):
@@ -180,6 +188,12 @@ def _parse_meta(
         if start is None:
             raise CaptureError(f"{where}: annotations[{i}] has no core:sample_start")
         count = _int_field(ann, "core:sample_count", f"{where}: annotations[{i}]")
+        for key in ("core:freq_lower_edge", "core:freq_upper_edge"):
+            if key in ann and not _finite_number(ann[key]):
+                raise CaptureError(f"{where}: annotations[{i}] {key} must be a finite number (Hz), got {ann[key]!r}")
+        for key in ("core:label", "core:comment", "core:generator"):
+            if key in ann and not isinstance(ann[key], str):
+                raise CaptureError(f"{where}: annotations[{i}] {key} must be text, got {ann[key]!r}")
         end = start + (count or 0)
         if start > samples or end > samples:
             raise CaptureError(

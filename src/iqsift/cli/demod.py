@@ -59,6 +59,7 @@ def demod(
     plot_format: str = PlotFormatOption,
     engine: str = EngineOption,
     agc: Optional[bool] = AgcOption,
+    squelch: Optional[float] = typer.Option(None, "--squelch", help="Mute audio while the channel is less than this many dB above its noise floor."),
     allow_nonfinite: bool = NonfiniteOption,
     force: bool = ForceOption,
     quiet: bool = QuietOption,
@@ -71,17 +72,21 @@ def demod(
     """Demodulate one channel to audio (AM envelope/coherent, USB, LSB, DSB)."""
     if plot_format not in ("png", "svg"):
         raise ParameterError(f"--plot-format: got {plot_format!r}; use png or svg")
+    if squelch is not None and not (0 <= squelch < 200):
+        raise ParameterError(f"--squelch: must be between 0 and 200 dB, got {squelch!r}")
     channel = make_channel(freq=freq, offset=offset, bandwidth=bandwidth, emission=emission, mode=mode,
-                           audio_rate=audio_rate, name=Path(output).stem)
+                           audio_rate=audio_rate, name=Path(output).stem, squelch_db=squelch)
     started = time.perf_counter()
     with open_capture(capture_path, format=format, rate=rate, center=center, strict=strict) as capture:
         selection = capture.select(start, duration)
         receiver = Receiver.for_capture(capture, channel, selection, engine=engine, agc=agc,
                                         spectra=bool(spectra))
         spectra_dir = Path(spectra) if spectra else None
-        if spectra_dir is not None and spectra_dir.exists() and not spectra_dir.is_dir():
-            raise ParameterError(f"--spectra {spectra_dir}: exists and is not a folder")
-        with OutputSet(force=force) as outputs:
+        if spectra_dir is not None:
+            from ..stage_plots import check_stage_plot_folder
+
+            check_stage_plot_folder(spectra_dir, plot_format, force)  # before any work
+        with OutputSet(force=force, protect=capture.files) as outputs:
             audio_writer = AudioWriter(output, receiver.audio_rate_hz, outputs=outputs)
             report_tmp = outputs.reserve(report) if report else None
             bb_writer = None

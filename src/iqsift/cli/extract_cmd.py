@@ -60,9 +60,20 @@ def extract_command(
         centre = capture.center_for(selection)
         channels = channels_from_plan(plan, centre)
         extractor = Extractor(capture.sample_rate_hz, channels, center_hz=centre,
-                              real_input=not capture.is_complex, spectra=spectra)
+                              real_input=not capture.is_complex, spectra=spectra,
+                              time_offset_s=selection.start / capture.sample_rate_hz)
+        parent = folder.parent if str(folder.parent) else Path(".")
+        if not parent.is_dir():
+            raise ParameterError(f"--out-dir {folder}: the folder {parent} does not exist")
+        if spectra:
+            from ..stage_plots import check_stage_plot_folder
+
+            for rx in extractor.receivers:  # before any work: no plot overwritten without --force
+                stem = rx.channel.extra.get("file_stem") or rx.channel.name
+                if (folder / "spectra" / stem).is_dir():
+                    check_stage_plot_folder(folder / "spectra" / stem, plot_format, force)
         created = not folder.exists()
-        folder.mkdir(parents=True, exist_ok=True)
+        folder.mkdir(exist_ok=True)
         try:
             result = _run(extractor, capture, selection, folder, plan_path, baseband, spectra, plot_format,
                           allow_nonfinite, force, quiet)
@@ -79,7 +90,7 @@ def extract_command(
 
 def _run(extractor, capture, selection, folder, plan_path, baseband, spectra, plot_format, allow_nonfinite,
          force, quiet) -> dict:
-    with OutputSet(force=force) as outputs:
+    with OutputSet(force=force, protect=(*capture.files, Path(plan_path))) as outputs:
         writers, bb_writers, files = [], [], []
         for rx in extractor.receivers:
             stem = rx.channel.extra.get("file_stem") or rx.channel.name

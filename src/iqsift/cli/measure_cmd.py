@@ -59,7 +59,8 @@ def measure_command(
     with open_capture(capture_path, format=format, rate=rate, center=center, strict=strict) as capture:
         selection = capture.select(start, duration)
         receiver = Receiver.for_capture(capture, channel, selection, agc=False).analyze(
-            tone_hz=tone_hz, weighting=weighting, x_db=x_db, activity={"threshold_db": threshold})
+            tone_hz=tone_hz, weighting=weighting, x_db=x_db, activity={"threshold_db": threshold},
+            time_offset_s=selection.start / capture.sample_rate_hz)  # activity in capture time
         blocks = capture.blocks(start=selection.start, count=selection.count,
                                 nonfinite="zero" if allow_nonfinite else "error")
         for _ in receiver.stream(progress_blocks(blocks, selection.count, "measuring", quiet)):

@@ -7,7 +7,7 @@ from typing import Any, Optional
 
 import typer
 
-from ..captures import OutputSet, open_capture
+from ..captures import OutputSet, input_files, open_capture
 from ..errors import ParameterError
 from ..rasters import parse_raster
 from ..survey import DEFAULT_THRESHOLD_DB, survey_capture, survey_plan_text
@@ -71,7 +71,7 @@ def survey(
     threshold_db = parse_threshold(threshold)
     raster_obj = parse_raster(raster) if raster is not None else None
     resolution_hz = parse_positive_hz(resolution, "--resolution") if resolution is not None else None
-    with OutputSet(force=force) as outputs:
+    with OutputSet(force=force, protect=input_files(capture_path)) as outputs:
         plan_tmp = outputs.reserve(plan_out) if plan_out else None  # checked before any work
         with open_capture(capture_path, format=format, rate=rate, center=center, strict=strict) as capture:
             selection = capture.select(start, duration)
@@ -141,7 +141,7 @@ def format_survey(report: dict[str, Any]) -> str:
     lo, hi = report["noise_floor_range_dbfs_per_hz"]
     lines.append(
         f"floor      {report['noise_floor_dbfs_per_hz']:.1f} dBFS/Hz (median; {lo:.1f} to {hi:.1f} across the band); "
-        f"threshold {report['threshold_db']:g} dB, false alarms expected <= {report['expected_false_detections']:.1g}"
+        f"threshold {report['threshold_db']:g} dB, false alarms expected <= {report['expected_false_detections']:.2g}"
     )
     dc = report.get("dc_offset")
     if dc is not None:
