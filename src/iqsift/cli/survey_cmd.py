@@ -141,7 +141,7 @@ def format_survey(report: dict[str, Any]) -> str:
     lo, hi = report["noise_floor_range_dbfs_per_hz"]
     lines.append(
         f"floor      {report['noise_floor_dbfs_per_hz']:.1f} dBFS/Hz (median; {lo:.1f} to {hi:.1f} across the band); "
-        f"threshold {report['threshold_db']:g} dB, false alarms expected <= {report['expected_false_detections']:.2g}"
+        f"threshold {report['threshold_db']:g} dB, false alarms expected {_expected(report['expected_false_detections'])}"
     )
     dc = report.get("dc_offset")
     if dc is not None:
@@ -174,3 +174,8 @@ def format_survey(report: dict[str, Any]) -> str:
     if report.get("plan"):
         lines.append(f"plan       {report['plan']}")
     return "\n".join(lines)
+
+
+def _expected(value: float) -> str:
+    """An expected count of false detections for people."""
+    return "< 0.01" if value < 0.01 else f"<= {value:.2g}"
