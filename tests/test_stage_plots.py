@@ -59,3 +59,16 @@ def test_bad_plot_format(run_cli, tmp_path):
     status, out, err = run_cli("demod", tmp_path / "x.sigmf-meta", "--offset", "0", "-o", tmp_path / "a.wav",
                                "--plot-format", "gif")
     assert status == 2 and "--plot-format" in err
+
+
+def test_polyphase_engine_has_a_tap_after_each_decimation_stage():
+    # [3/6]: a spectrum after each decimation stage (the time-domain engine has separate stages).
+    rx = Receiver(FS, make_channel(offset=30e3, bandwidth="6k"), engine="polyphase", spectra=True)
+    result = rx.run(samples=am_capture())
+    stages = [name for name in result.spectra if name.startswith("stage")]
+    assert len(stages) == len(rx.design.polyphase_plan.stages) >= 1
+    last = result.spectra[stages[-1]]
+    assert last.rate_hz == rx.design.channel_rate_hz
+    # after the first stage the passband centre sits at 0 Hz: the carrier line is the strongest bin
+    first = result.spectra[stages[0]]
+    assert abs(first.freqs_hz[np.argmax(first.values_db)]) < 3 * (first.freqs_hz[1] - first.freqs_hz[0])

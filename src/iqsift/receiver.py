@@ -356,9 +356,13 @@ class _PolyphaseFrontEnd:
         self.rotation = np.complex64(np.exp(-2j * np.pi * 0.5 * (lo + hi) * self.delay_s))
         self.rate_hz = fs
 
-    def process(self, block: np.ndarray) -> np.ndarray:
-        for stage in self.stages:
+        self.taps: list[Any] = [None] * len(stages)  # optional spectrum accumulators after each stage
+
+    def process(self, block: np.ndarray, tap: bool = True) -> np.ndarray:
+        for stage, acc in zip(self.stages, self.taps):
             block = stage.process(block)
+            if tap and acc is not None and block.size:
+                acc.feed(block)
         return self.mixer.process(block) * self.rotation
 
     def flush(self) -> np.ndarray:
@@ -690,6 +694,16 @@ class Receiver:
         self._kept_audio: list[np.ndarray] = []
         self._kept = 0
         self.taps = self._make_taps(spectra)
+        if spectra and isinstance(self.front, _PolyphaseFrontEnd) and (spectra is True or "stages" in spectra):
+            from .spectra import WelchAccumulator
+
+            # the time-domain engine has a tap after each decimation stage (the first one also mixes)
+            for i, stage in enumerate(self.design.polyphase_plan.stages):
+                name = f"stage{i + 1}"
+                rate = stage.rate_out_hz
+                acc = WelchAccumulator(rate, nperseg=1 << max(8, int(round(math.log2(rate / 20)))), name=name)
+                self.front.taps[i] = acc
+                self.taps[name] = acc
         back_taps = dict(self.taps)
         if "channel" in self.spectrograms:
             back_taps["channel_spectrogram"] = self.spectrograms["channel"]
@@ -711,7 +725,7 @@ class Receiver:
         from .spectra import WelchAccumulator
 
         names = TAP_NAMES if spectra is True else tuple(spectra)
-        unknown = [n for n in names if n not in TAP_NAMES]
+        unknown = [n for n in names if n not in TAP_NAMES and n != "stages"]
         if unknown:
             raise ParameterError(f"spectra: unknown tap point(s) {unknown}; tap points are {', '.join(TAP_NAMES)}")
         d = self.design
@@ -823,7 +837,11 @@ class Receiver:
 
     def flush(self) -> np.ndarray:
         """Finish: push the delayed tail out; total audio = round(samples_in · audio_rate / fs)."""
-        tail = self.front.process(np.zeros(self.flush_padding, np.complex64))
+        zeros = np.zeros(self.flush_padding, np.complex64)
+        if isinstance(self.front, _PolyphaseFrontEnd):
+            tail = self.front.process(zeros, tap=False)  # padding is not signal: keep it out of the spectra
+        else:
+            tail = self.front.process(zeros)
         return self.finish_baseband(tail, self.front.flush())
 
     def finish_baseband(self, tail: np.ndarray, flushed: np.ndarray) -> np.ndarray:

@@ -20,17 +20,29 @@ __all__ = ["write_stage_plots", "stage_overlays", "stage_plot_names", "check_sta
 
 _TITLES = {
     "input": "input around the channel (capture, before any processing)",
-    "channel": "channel baseband (after mixing, channel filter, decimation)",
+    "channel": "channel baseband (carrier at 0 Hz, channel filter applied, decimated)",
     "detector": "detector output",
     "audio": "audio",
 }
 
 
-def stage_plot_names(fmt: str) -> list[str]:
-    """Every file name :func:`write_stage_plots` may write into its folder."""
+def _stage_title(receiver, name: str) -> str:
+    if name.startswith("stage"):
+        k = int(name[5:])
+        st = receiver.design.polyphase_plan.stages[k - 1]
+        what = "mixing, low-pass and decimation" if k == 1 else "low-pass and decimation"
+        return (f"after decimation stage {k} ({what} by {st.down}: {st.rate_in_hz:g} -> {st.rate_out_hz:g} S/s, "
+                f"{st.lowpass.num_taps} taps)")
+    return _TITLES[name]
+
+
+def stage_plot_names(fmt: str, stages: int = 4) -> list[str]:
+    """Every file name :func:`write_stage_plots` may write into its folder (up to ``stages`` decimation stages)."""
     names = []
-    for i, name in enumerate(("input", "channel", "detector", "audio")):
-        names += [f"{i + 1}_{name}.{fmt}", f"{i + 1}_{name}.json"]
+    taps = ("input", *(f"stage{k + 1}" for k in range(stages)), "channel", "detector", "audio")
+    for i in range(len(taps)):
+        for name in taps:
+            names += [f"{i + 1}_{name}.{fmt}", f"{i + 1}_{name}.json"]
     names += [f"overview.{fmt}", f"waveform.{fmt}"]
     for name in ("channel", "audio"):
         names += [f"spectrogram_{name}.{fmt}", f"spectrogram_{name}.json"]
@@ -117,11 +129,12 @@ def write_stage_plots(receiver, out_dir: Path, *, capture_name: str, fmt: str = 
 
     if "input" in spectra:
         spectra["input"] = _around_channel(spectra["input"], receiver)
-    order = [n for n in ("input", "channel", "detector", "audio") if n in spectra]
+    stage_names = sorted((n for n in spectra if n.startswith("stage")), key=lambda n: int(n[5:]))
+    order = [n for n in ("input", *stage_names, "channel", "detector", "audio") if n in spectra]
     for i, name in enumerate(order):
         spec = spectra[name]
         path = plots.plot_stage_spectrum(
-            spec, target(f"{i + 1}_{name}.{fmt}"), title=f"{title}\n{_TITLES[name]}",
+            spec, target(f"{i + 1}_{name}.{fmt}"), title=f"{title}\n{_stage_title(receiver, name)}",
             filter_overlay=extras["overlays"].get(name), channel_band=extras["bands"].get(name), fmt=fmt,
         )
         written.append(out_dir / f"{i + 1}_{name}.{fmt}")
