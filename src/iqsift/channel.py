@@ -191,6 +191,30 @@ def make_channel(
     Exactly one of ``freq``/``offset`` and at most one of ``bandwidth``/``emission``
     (default: 6 kHz AM, the common double-sideband voice channel, 6K00A3E). The
     mode defaults to the emission's (A3E → envelope, J3E → usb ...).
+
+    Parameters
+    ----------
+    freq : float or str, optional
+        Absolute carrier frequency (Hz; ``"124.15M"``). Used as an offset when the
+        capture has no centre frequency.
+    offset : float or str, optional
+        Carrier offset from the capture centre (Hz; ``"-25k"``).
+    bandwidth : float or str, optional
+        Necessary bandwidth (Hz; ``"6k"``).
+    emission : str, optional
+        ITU emission designator (``"6K00A3E"``, ``"2K70J3E"``).
+    mode : {"envelope", "coherent", "usb", "lsb", "dsb"}, optional
+        Detector.
+    audio_rate : float or str
+        Output audio rate (samples/s).
+    name : str
+        Label for reports and file names.
+    transition : float or str, optional
+        Channel filter transition width (Hz); default see :attr:`Channel.transition`.
+    audio_band : tuple of float, None or "auto"
+        Audio band-pass (low, high) in Hz; None for none.
+    squelch_db : float, optional
+        Mute the audio while the channel is less than this many dB above its noise floor.
     """
     if (freq is None) == (offset is None):
         raise ParameterError("give exactly one of --freq (absolute, Hz) and --offset (relative to the capture centre)")

@@ -715,9 +715,18 @@ class Receiver:
 
     @classmethod
     def for_capture(cls, capture, channel: Channel, selection=None, **options: Any) -> "Receiver":
-        """A receiver matching a capture's rate, centre (over ``selection``) and kind."""
-        return cls(capture.sample_rate_hz, channel, center_hz=capture.center_for(selection),
-                   real_input=not capture.is_complex, **options)
+        """A receiver matching a capture's rate, centre (over ``selection``) and kind.
+
+        Raises
+        ------
+        ParameterError
+            Naming the capture file, when the channel cannot be received from it.
+        """
+        try:
+            return cls(capture.sample_rate_hz, channel, center_hz=capture.center_for(selection),
+                       real_input=not capture.is_complex, **options)
+        except ParameterError as exc:
+            raise ParameterError(f"{capture.path}: {exc}") from None
 
     def _make_taps(self, spectra) -> dict[str, Any]:
         if not spectra:
