@@ -109,6 +109,20 @@ def test_power_of_two_decimation():
     assert power_of_two_decimation(16000, 16000) == 1
 
 
-def test_rejects_non_power_of_two_decimation():
-    with pytest.raises(ParameterError, match="power of two"):
-        FastConvChannelizer(FS, [BankChannel(0.0, (-3000, 3000), H, 12)])
+def test_rejects_decimation_with_large_prime_factor():
+    # the FFT size must be a multiple of every decimation and fast to transform (factors 2, 3, 5)
+    with pytest.raises(ParameterError, match="prime factor"):
+        FastConvChannelizer(FS, [BankChannel(0.0, (-3000, 3000), H, 14)])
+
+
+def test_mixed_decimations_share_one_bank():
+    # channels decimating by 16 and 15: the hop is a multiple of both, each output stays on its own grid
+    rng = np.random.default_rng(5)
+    x = (0.1 * (rng.standard_normal(30000) + 1j * rng.standard_normal(30000))).astype(np.complex64)
+    channels = [BankChannel(12345.6, (-3000.0, 3000.0), H, 16), BankChannel(-50e3, (-3000.0, 3000.0), H, 15)]
+    bank = FastConvChannelizer(FS, channels)
+    assert bank.fft_size % 240 == 0 and bank.hop % 240 == 0
+    got = run_chunked(bank, x, [4321, 17000])
+    for ch, y in zip(channels, got):
+        ref = reference(x, ch, bank.fft_size)
+        assert np.max(np.abs(y - ref)) / np.max(np.abs(ref)) < 1e-4

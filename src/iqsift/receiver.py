@@ -35,7 +35,13 @@ from typing import Any, Iterator
 import numpy as np
 
 from .channel import Channel
-from .dsp.channelizer import BankChannel, FastConvChannelizer, choose_fft_size, power_of_two_decimation
+from .dsp.channelizer import (
+    BankChannel,
+    FastConvChannelizer,
+    choose_fft_size,
+    power_of_two_decimation,
+    smooth_numbers,
+)
 from .dsp.design import LowpassDesign, design_lowpass, design_resampler, plan_decimation
 from .dsp.detectors import make_detector
 from .dsp.post import CarrierNormaliser, DelayTrim, FractionalDelay, Squelch, _long_fft
@@ -210,6 +216,24 @@ class ChannelDesign:
         }
 
 
+def fft_decimation(rate_hz: float, min_rate_hz: float, audio_rate_hz: float) -> int:
+    """Decimation for the FFT engine: a whole number with no prime factor above 5 (so it divides a fast FFT
+    size) keeping the channel rate at least ``min_rate_hz``, chosen for the least work after the bank:
+    a low channel rate, and a simple exact ratio to the audio rate (2.4 MS/s -> 8 kS/s -> 16 kHz audio:
+    decimation 300, audio resampling x2)."""
+    best, best_cost = 1, math.inf
+    for d in smooth_numbers(max(1, int(rate_hz // min_rate_hz))):
+        ch = rate_hz / d
+        if ch < min_rate_hz:
+            continue
+        ratio = Fraction(audio_rate_hz / ch).limit_denominator(1000)
+        exact = abs(float(ratio) * ch - audio_rate_hz) <= 1e-9 * audio_rate_hz
+        cost = ch * (1.0 + 0.01 * (ratio.numerator + ratio.denominator)) * (1.0 if exact else 1.5)
+        if cost < best_cost:
+            best, best_cost = d, cost
+    return best
+
+
 def design_channel(
     rate_hz: float,
     channel: Channel,
@@ -256,12 +280,25 @@ def design_channel(
         )
     edge = max(abs(lo - t), abs(hi + t))
     top = max(abs(lo), abs(hi))
-    min_rate = max(3.0 * top, top + edge)
+    if engine == "fft":
+        # The bank keeps only the channel's own bins, so nothing outside them can alias; but cutting the
+        # filter's response off at the edge of those bins lengthens its impulse response, which then wraps
+        # around the overlap-save frame. The cut must therefore fall well down the transition band, where
+        # the response is already > 60 dB down: at least 80 % of the way to the stopband edge (measured:
+        # a neighbour 40 dB stronger 8.33 kHz away stays > 70 dB down). And the passband keeps a fifth of
+        # the channel band spare on each side for the audio filters.
+        min_rate = max(2.5 * top, 2.0 * (top + 0.8 * t))
+    else:
+        # decimating stages fold everything beyond the stopband edge: it must land outside the passband
+        min_rate = max(3.0 * top, top + edge)
     if min_rate > rate_hz:
         raise ParameterError(
             f"channel {where}: needs a capture rate of at least {min_rate:g} samples/s, the capture has {rate_hz:g}"
         )
-    decimation = power_of_two_decimation(rate_hz, min_rate)
+    if engine == "fft":
+        decimation = fft_decimation(rate_hz, min_rate, channel.audio_rate_hz)
+    else:
+        decimation = power_of_two_decimation(rate_hz, min_rate)
     ch_rate = rate_hz / decimation
     half = 0.5 * (hi - lo)
     prototype = plan = None

@@ -47,7 +47,14 @@ import scipy.fft
 
 from ..errors import ParameterError
 
-__all__ = ["BankChannel", "FastConvChannelizer", "choose_fft_size", "default_workers", "power_of_two_decimation"]
+__all__ = [
+    "BankChannel",
+    "FastConvChannelizer",
+    "choose_fft_size",
+    "default_workers",
+    "power_of_two_decimation",
+    "smooth_numbers",
+]
 
 _MAX_FFT = 1 << 20
 
@@ -66,7 +73,7 @@ class BankChannel:
         Real, linear-phase prototype low-pass (unity DC gain) whose passband
         half-width is ``(high - low) / 2`` at the input rate.
     decimation : int
-        Input samples per output sample; must divide the FFT size.
+        Input samples per output sample (no prime factor above 5); divides the FFT size.
     """
 
     carrier_hz: float
@@ -96,22 +103,46 @@ def power_of_two_decimation(rate_hz: float, min_rate_hz: float) -> int:
     return 1 << int(math.floor(math.log2(rate_hz / min_rate_hz) + 1e-12))
 
 
-def choose_fft_size(history: int, max_decimation: int, min_hop_share: float = 0.75) -> int:
-    """Smallest power-of-two FFT size whose hop is at least ``min_hop_share`` of it.
+def smooth_numbers(limit: int) -> list[int]:
+    """The integers 1..limit with no prime factor above 5 (sizes pocketfft transforms efficiently)."""
+    out = []
+    p2 = 1
+    while p2 <= limit:
+        p3 = p2
+        while p3 <= limit:
+            p5 = p3
+            while p5 <= limit:
+                out.append(p5)
+                p5 *= 5
+            p3 *= 3
+        p2 *= 2
+    return sorted(out)
+
+
+def choose_fft_size(history: int, decimation: int, min_hop_share: float = 0.75) -> int:
+    """Smallest FFT size (a multiple of ``decimation`` with no prime factor above 5) whose hop is at least
+    ``min_hop_share`` of it.
 
     Larger transforms waste less on overlap but run slower per sample once
     they leave the cache; at least 4x the filter length (75 % useful) is the
     usual compromise (common practice for overlap-save).
     """
-    n = max(1 << 10, 2 * max_decimation)
-    while n - history < min_hop_share * n or (n - history) < max_decimation:
-        n <<= 1
-    if n > _MAX_FFT:
-        raise ParameterError(
-            f"channel filter of {history + 1} taps needs an FFT of {n} points; reduce the input rate or "
-            "relax the transition band"
-        )
-    return n
+    need = max(1 << 10, 2 * decimation, int(math.ceil(history / (1.0 - min_hop_share))))
+    for m in smooth_numbers(max(4, _MAX_FFT // max(decimation, 1))):
+        n = m * decimation
+        if n >= need and n - history >= decimation and _is_smooth(n):
+            return n
+    raise ParameterError(
+        f"channel filter of {history + 1} taps needs an FFT larger than {_MAX_FFT} points; reduce the input "
+        "rate or relax the transition band"
+    )
+
+
+def _is_smooth(n: int) -> bool:
+    for p in (2, 3, 5):
+        while n % p == 0:
+            n //= p
+    return n == 1
 
 
 class FastConvChannelizer:
@@ -122,12 +153,12 @@ class FastConvChannelizer:
     rate_hz : float
         Input sample rate (samples/s).
     channels : sequence of BankChannel
-        The channels; their decimations must all be powers of two.
+        The channels; the FFT size is a multiple of all their decimations.
     real_input : bool
         The input is real-valued (imaginary part zero): outputs are scaled
         by 2 (analytic-signal convention).
     fft_size : int, optional
-        Override the FFT size (power of two, large enough for the filters).
+        Override the FFT size (a multiple of every decimation, large enough for the filters).
     workers : int or None
         Threads for the transforms (scipy.fft ``workers``); None uses every CPU
         this process may run on, up to 4 (the frames of a block are
@@ -157,18 +188,23 @@ class FastConvChannelizer:
         self.channels = list(channels)
         self.real_input = real_input
         self.workers = default_workers() if workers is None else max(1, int(workers))
-        decimations = [c.decimation for c in self.channels]
+        decimations = [int(c.decimation) for c in self.channels]
         for d in decimations:
-            if d < 1 or d & (d - 1):
-                raise ParameterError(f"channelizer: decimation must be a power of two, got {d}")
-        self.max_decimation = max(decimations)
+            if d < 1 or not _is_smooth(d):
+                raise ParameterError(f"channelizer: decimation must be a whole number with no prime factor above 5, "
+                                     f"got {d}")
+        # every channel's output grid must stay aligned across frames: history and hop are multiples of
+        # every decimation
+        step = math.lcm(*decimations)
+        self.max_decimation = step
         longest = max(len(c.taps) for c in self.channels)
-        self.history = int(math.ceil((longest - 1) / self.max_decimation)) * self.max_decimation
-        n = fft_size or choose_fft_size(self.history, self.max_decimation)
-        if n & (n - 1) or n - self.history < self.max_decimation:
-            raise ParameterError(f"channelizer: FFT size {n} is not a power of two large enough for the filters")
+        self.history = int(math.ceil((longest - 1) / step)) * step
+        n = fft_size or choose_fft_size(self.history, step)
+        if n % step or n - self.history < step:
+            raise ParameterError(f"channelizer: FFT size {n} is not a multiple of every decimation ({step}) "
+                                 "large enough for the filters")
         self.fft_size = n
-        self.hop = ((n - self.history) // self.max_decimation) * self.max_decimation
+        self.hop = ((n - self.history) // step) * step
         self._prepare_channels()
         self.reset()
 
@@ -239,42 +275,59 @@ class FastConvChannelizer:
         if block.dtype != np.complex64:
             block = block.astype(np.complex64)
         self._consumed += block.shape[0]
-        self._buffer = np.concatenate([self._buffer, block]) if block.size else self._buffer
-        frames = (self._buffer.shape[0] - self.history) // self.hop
+        old = self._buffer
+        n, hop = self.fft_size, self.hop
+        frames = (old.shape[0] + block.shape[0] - self.history) // hop
         if frames <= 0:
+            self._buffer = np.concatenate([old, block]) if block.size else old
             return [np.zeros(0, np.complex64) for _ in self.channels]
-        out = self._run_frames(frames)
-        self._buffer = self._buffer[frames * self.hop :].copy()
-        self._frame_start += frames * self.hop
+        # Frame i covers samples [i*hop, i*hop + N) of (old ++ block). The few frames starting inside the
+        # held samples come from a short joined array; the rest are views straight into the block, so the
+        # block is never copied as a whole.
+        straddling = min(frames, -(-old.shape[0] // hop))
+        views = []
+        if straddling:
+            head = np.concatenate([old, block[: max(0, (straddling - 1) * hop + n - old.shape[0])]])
+            views.append(np.lib.stride_tricks.sliding_window_view(head, n)[::hop][:straddling])
+        if frames > straddling:
+            first = straddling * hop - old.shape[0]
+            last = (frames - 1) * hop - old.shape[0] + n
+            views.append(np.lib.stride_tricks.sliding_window_view(block[first:last], n)[::hop])
+        out = self._run_frames(views)
+        used = frames * hop
+        if used >= old.shape[0]:
+            self._buffer = block[used - old.shape[0] :].copy()
+        else:
+            self._buffer = np.concatenate([old[used:], block])
+        self._frame_start += used
         return out
 
-    def _run_frames(self, frames: int) -> list[np.ndarray]:
+    def _run_frames(self, views: list[np.ndarray]) -> list[np.ndarray]:
         n, hop, hist = self.fft_size, self.hop, self.history
-        view = np.lib.stride_tricks.sliding_window_view(self._buffer[: hist + frames * hop], n)[::hop]
-        results: list[np.ndarray | None] = [None] * len(self.channels)
-        # limit the 2-D FFT's working set to ~8 frames at a time
+        # limit the 2-D FFT's working set to ~2 Mi samples at a time
         step = max(1, (1 << 21) // n)
         parts: list[list[np.ndarray]] = [[] for _ in self.channels]
-        for first in range(0, frames, step):
-            chunk = view[first : first + step]
-            spectra = scipy.fft.fft(chunk, axis=-1, workers=self.workers)
-            starts = self._frame_start + (first + np.arange(chunk.shape[0], dtype=np.int64)) * hop
-            for k, members, idx, filt, k0 in self._groups:
-                decim = n // k
-                skip = hist // decim
-                count = hop // decim
-                # bins of every member channel for every frame: (frames, channels, K)
-                selected = spectra[:, idx] * filt[None, :, :]
-                y = scipy.fft.ifft(selected, axis=-1, workers=self.workers)[:, :, skip : skip + count]
-                # exact frame phase: exp(-j 2π k0 s / N) with s the frame start (integers mod N)
-                phase_idx = np.mod(np.outer(starts, k0), n)
-                rot = np.exp(-2j * np.pi * phase_idx / n).astype(np.complex64)
-                y = y * rot[:, :, None]
-                for j, ci in enumerate(members):
-                    parts[ci].append(y[:, j, :].reshape(-1))
-        for ci in range(len(self.channels)):
-            results[ci] = np.concatenate(parts[ci]).astype(np.complex64, copy=False)
-        return results  # type: ignore[return-value]
+        done = 0
+        for view in views:
+            for first in range(0, view.shape[0], step):
+                chunk = view[first : first + step]
+                spectra = scipy.fft.fft(chunk, axis=-1, workers=self.workers)
+                starts = self._frame_start + (done + np.arange(chunk.shape[0], dtype=np.int64)) * hop
+                done += chunk.shape[0]
+                for k, members, idx, filt, k0 in self._groups:
+                    decim = n // k
+                    skip = hist // decim
+                    count = hop // decim
+                    # bins of every member channel for every frame: (frames, channels, K)
+                    selected = spectra[:, idx] * filt[None, :, :]
+                    y = scipy.fft.ifft(selected, axis=-1, workers=self.workers)[:, :, skip : skip + count]
+                    # exact frame phase: exp(-j 2π k0 s / N) with s the frame start (integers mod N)
+                    phase_idx = np.mod(np.outer(starts, k0), n)
+                    rot = np.exp(-2j * np.pi * phase_idx / n).astype(np.complex64)
+                    y = y * rot[:, :, None]
+                    for j, ci in enumerate(members):
+                        parts[ci].append(y[:, j, :].reshape(-1))
+        return [np.concatenate(p).astype(np.complex64, copy=False) for p in parts]
 
     def flush(self) -> list[np.ndarray]:
         """Pad with zeros to finish the last frame; returns the remaining outputs.
