@@ -17,6 +17,22 @@ from .stages import FirFilter
 __all__ = ["CarrierNormaliser", "DelayTrim", "FractionalDelay", "Squelch"]
 
 
+class _SameRate:
+    """Rates of a stage that keeps the sample rate (``rate_hz`` set by the subclass)."""
+
+    rate_hz: float
+
+    @property
+    def rate_in(self) -> float:
+        """Input rate (samples/s)."""
+        return self.rate_hz
+
+    @property
+    def rate_out(self) -> float:
+        """Output rate (samples/s)."""
+        return self.rate_hz
+
+
 def _long_fft(num_taps: int) -> int:
     """Overlap-save FFT size for filters fed long blocks: few transforms per block (less Python overhead)."""
     import scipy.fft
@@ -24,7 +40,7 @@ def _long_fft(num_taps: int) -> int:
     return int(scipy.fft.next_fast_len(max(8192, 16 * num_taps)))
 
 
-class CarrierNormaliser:
+class CarrierNormaliser(_SameRate):
     """``(d − c)/c`` with ``c`` the carrier level from a linear-phase low-pass of ``d``.
 
     Parameters
@@ -81,14 +97,6 @@ class CarrierNormaliser:
         self.check_carrier = bool(check_carrier) and self.normalise
         self.max_gain = 10 ** (-max_gain_db / 20)
         self.reset()
-
-    @property
-    def rate_in(self) -> float:
-        return self.rate_hz
-
-    @property
-    def rate_out(self) -> float:
-        return self.rate_hz
 
     @property
     def delay(self) -> float:
@@ -198,7 +206,7 @@ class DelayTrim:
         return block[drop:]
 
 
-class FractionalDelay:
+class FractionalDelay(_SameRate):
     """Delay a real signal by a non-integer number of samples with a windowed-sinc interpolator.
 
     The interpolator is the ideal fractional delay ``sinc(n − c)`` (Laakso et
@@ -228,20 +236,10 @@ class FractionalDelay:
         window[np.abs(arg) >= 1] = 0.0
         taps = np.sinc(k - centre) * window
         taps /= taps.sum()
-        first = int(np.argmax(taps != 0))
         self.taps = taps
         self._filter = FirFilter(taps, rate_hz, method="direct" if taps.size <= 256 else "fft")
         self.rate_hz = float(rate_hz)
         self._delay = centre
-        del first
-
-    @property
-    def rate_in(self) -> float:
-        return self.rate_hz
-
-    @property
-    def rate_out(self) -> float:
-        return self.rate_hz
 
     @property
     def delay(self) -> float:
