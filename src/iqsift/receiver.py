@@ -543,7 +543,7 @@ class ChannelBackEnd:
             # one linear-phase FIR for both: the band-pass convolved with the fractional delay
             band = self.post.pop()
             joint = np.convolve(band.taps, fractional.taps)
-            merged = FirFilter(joint, rate, method="fft", fft_size=_long_fft(joint.size))
+            merged = FirFilter(joint, rate, method="fft", fft_size=_long_fft(joint.size), single=True)
             self.post.append(_Delayed(merged, band.delay + fractional.delay))
         else:
             self.post.append(fractional)

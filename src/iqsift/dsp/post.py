@@ -89,7 +89,8 @@ class CarrierNormaliser(_SameRate):
         stop_hz = min(stop_hz, 0.45 * rate_hz)
         pass_hz = min(pass_hz, 0.5 * stop_hz)
         self.design = design_lowpass(rate_hz, pass_hz, stop_hz, ripple_db=0.5, atten_db=atten_db, method="kaiser")
-        self._lp = FirFilter(self.design.taps, rate_hz, method="fft", fft_size=_long_fft(self.design.num_taps))
+        self._lp = FirFilter(self.design.taps, rate_hz, method="fft", fft_size=_long_fft(self.design.num_taps),
+                             single=True)
         self._lag = int(round(self.design.group_delay_samples))
         self.rate_hz = float(rate_hz)
         self.floor = float(floor)

@@ -551,12 +551,17 @@ class FirFilter(Stage):
     method : {"auto", "direct", "fft"}
     fft_size : int, optional
         FFT length for the ``"fft"`` method (must exceed N − 1).
+    single : bool
+        Run the ``"fft"`` method in single precision (complex64 transforms): about twice as fast,
+        relative error ~1e-7 (−140 dB); for audio-rate filters where float32 output is all that is kept.
     """
 
     DIRECT_MAX_TAPS = 64
     _SMALL_BLOCK = 64
 
-    def __init__(self, taps, rate_hz: float, method: str = "auto", fft_size: int | None = None):
+    def __init__(self, taps, rate_hz: float, method: str = "auto", fft_size: int | None = None,
+                 single: bool = False):
+        self._single = bool(single)
         self._h = _check_taps("taps", taps)
         fs = _check_rate("rate_hz", rate_hz)
         self._rate_in = self._rate_out = fs
@@ -577,6 +582,9 @@ class FirFilter(Stage):
             self._hop = nfft - (n - 1)
             self._Hc = sfft.fft(self._h, nfft)
             self._Hr = None if self._complex_stage else sfft.rfft(self._h, nfft)
+            if self._single:  # single-precision transforms: about twice as fast, ~1e-7 relative error
+                self._Hc = self._Hc.astype(np.complex64)
+                self._Hr = None if self._Hr is None else self._Hr.astype(np.complex64)
         else:
             self._nfft = None
             self._hop = None
@@ -598,12 +606,17 @@ class FirFilter(Stage):
     def reset(self) -> None:
         self._complex_seen = False
         m = self._h.size - 1
-        self._state = np.zeros(m, dtype=np.complex128 if self._complex_stage else np.float64)
+        if self._single:
+            self._state = np.zeros(m, dtype=np.complex64 if self._complex_stage else np.float32)
+        else:
+            self._state = np.zeros(m, dtype=np.complex128 if self._complex_stage else np.float64)
 
     def process(self, block) -> np.ndarray:
         x = self._prep(block)
+        if self._single and self._method == "fft":
+            x = x.astype(np.complex64 if x.dtype.kind == "c" else np.float32)
         if x.dtype.kind == "c" and self._state.dtype.kind != "c":
-            self._state = self._state.astype(np.complex128)
+            self._state = self._state.astype(np.complex64 if self._single else np.complex128)
         if x.size == 0:
             return self._empty()
         if self._method == "direct":
@@ -629,7 +642,10 @@ class FirFilter(Stage):
             buf = np.concatenate([buf, np.zeros(pad, dtype=buf.dtype)])
         segs = sliding_window_view(buf, nfft)[::hop]
         real = buf.dtype.kind != "c" and self._Hr is not None
-        out = np.empty((nseg, hop), dtype=np.float64 if real else np.complex128)
+        if self._single:
+            out = np.empty((nseg, hop), dtype=np.float32 if real else np.complex64)
+        else:
+            out = np.empty((nseg, hop), dtype=np.float64 if real else np.complex128)
         batch = max(1, (1 << 20) // nfft)
         for a in range(0, nseg, batch):
             s = segs[a : a + batch]
