@@ -89,7 +89,7 @@ MAX_EQUIRIPPLE_TAPS = 1500
 MAX_TAPS = 262_143
 """Longest filter designed at all (a transition this narrow is almost certainly a mistake)."""
 
-_GRID_POINTS_PER_TAP = 16  # ~8 grid points per sidelobe; the parabolic refinement finds the peaks between them
+_GRID_POINTS_PER_TAP = 32  # ~16 grid points per sidelobe; the parabolic refinement finds the peaks between them
 """Measurement grid density: FFT length >= this many points per tap (spacing rate/(128 N))."""
 
 _CASCADE_GRID_POINTS_PER_TAP = 32
@@ -294,6 +294,15 @@ def _band_extreme(mag: np.ndarray, spacing_hz: float, lo_hz: float, hi_hz: float
     off = np.clip(np.nan_to_num(off), -0.5, 0.5)
     f = np.clip((i[keep] + off) * spacing_hz, lo_hz, hi_hz)
     exact = evaluate(f)
+    # second pass: a parabola through exact values a quarter of a grid step either side of each vertex
+    h = 0.25 * spacing_hz
+    fl, fr = np.clip(f - h, lo_hz, hi_hz), np.clip(f + h, lo_hz, hi_hz)
+    el, er = evaluate(fl), evaluate(fr)
+    den2 = el - 2 * exact + er
+    with np.errstate(divide="ignore", invalid="ignore"):
+        off2 = np.where(den2 != 0, 0.5 * (el - er) / den2, 0.0)
+    f2 = np.clip(f + np.clip(np.nan_to_num(off2), -1.0, 1.0) * h, lo_hz, hi_hz)
+    exact = np.concatenate([exact, el, er, evaluate(f2)])
     return float(max(best, exact.max()) if largest else min(best, exact.min()))
 
 
@@ -303,7 +312,7 @@ def measure_lowpass(
     """Measure a low-pass filter's passband ripple and stopband attenuation.
 
     The magnitude response is evaluated on a uniform grid (zero-padded real
-    FFT, at least 16 points per tap), at the exact band edges, and exactly at
+    FFT, at least 32 points per tap), at the exact band edges, and exactly at
     the vertex of a parabola through each grid extreme near the worst one, so
     that peaks between grid points are not missed.
 
