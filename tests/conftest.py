@@ -5,8 +5,17 @@ from __future__ import annotations
 import json
 from pathlib import Path
 
+import os
+
 import numpy as np
 import pytest
+from hypothesis import settings
+
+# Reproducible property tests in CI: a fixed derandomized search (the same examples on every run); set
+# HYPOTHESIS_PROFILE=explore locally to search with fresh random examples.
+settings.register_profile("ci", derandomize=True, deadline=None)
+settings.register_profile("explore", deadline=None)
+settings.load_profile(os.environ.get("HYPOTHESIS_PROFILE", "ci"))
 
 from iqsift.cli import main
 
