@@ -794,11 +794,11 @@ class Receiver:
         # time-frequency views (bounded memory: at most 800 columns, merged as the run grows)
         if "channel" in names:
             self.spectrograms["channel"] = SpectrogramAccumulator(ch_rate, nperseg=1 << max(7, int(round(
-                math.log2(ch_rate / 40)))))
+                math.log2(ch_rate / 40)))), max_columns=400)
         if "audio" in names:
             fa = d.resampler.rate_out_hz
             self.spectrograms["audio"] = SpectrogramAccumulator(fa, nperseg=1 << max(7, int(round(math.log2(fa / 40)))),
-                                                                onesided=True)
+                                                                onesided=True, max_columns=400)
             self._keep_audio = True
         return taps
 

@@ -155,8 +155,9 @@ def write_stage_plots(receiver, out_dir: Path, *, capture_name: str, fmt: str = 
         plots.plot_spectrogram(times, freqs, power, target(f"{stem}.{fmt}"), title=f"{title}\n{labels[name]}",
                                fmt=fmt, units=units)
         written.append(out_dir / f"{stem}.{fmt}")
-        plots.save_plot_data({"times_s": np.asarray(times), "freqs_hz": np.asarray(freqs),
-                              "power_db": np.asarray(power), "units": units}, target(f"{stem}.json"))
+        # levels to 0.1 dB (far finer than a plot shows) keep the file small
+        plots.save_plot_data({"times_s": np.round(np.asarray(times), 4), "freqs_hz": np.round(np.asarray(freqs), 3),
+                              "power_db": np.round(np.asarray(power), 1), "units": units}, target(f"{stem}.json"))
         written.append(out_dir / f"{stem}.json")
     audio = receiver.kept_audio() if audio is None else audio
     if audio.size:
