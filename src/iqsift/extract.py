@@ -22,6 +22,7 @@ from .dsp.channelizer import FastConvChannelizer
 from .dsp.stages import Mixer
 from .errors import ParameterError
 from .plan import ChannelPlan, PlannedChannel
+from .dsp.post import CarrierNormaliser
 from .receiver import Receiver, bank_channel, input_tap
 
 __all__ = ["Extractor", "channels_from_plan"]
@@ -50,6 +51,96 @@ def channels_from_plan(plan: ChannelPlan | Sequence[PlannedChannel], center_hz: 
             )
         )
     return out
+
+
+class _AmBatch:
+    """Envelope-detected AM channels with identical chains, processed together as rows of 2-D arrays.
+
+    The detector, carrier normaliser, band-pass and resampler of every member are the same filters with
+    the same taps, so one set of calls per block serves them all (:mod:`iqsift.dsp.batch`); the
+    per-channel parts (level, taps, analyzer, squelch, fades, writers) stay with each channel's receiver.
+    """
+
+    def __init__(self, members: list[int], receivers: list[Receiver]) -> None:
+        from .dsp.batch import BatchCarrierNormaliser, BatchFir, BatchUpFirDn
+
+        self.members = members
+        self.rxs = [receivers[i] for i in members]
+        lead = self.rxs[0].back
+        rows = len(members)
+        normaliser, merged = lead.post
+        self.normaliser = BatchCarrierNormaliser(normaliser, rows)
+        self.fir = BatchFir(merged.stage.taps, rows, merged.stage.fft_size)
+        r = lead.resampler
+        self.resampler = BatchUpFirDn(r.taps, r.up, r.down, rows)
+        self.gain = np.float32(lead.audio_gain)
+        self.detector_out = 0
+        self.real_total: int | None = None
+        self.baseband = 0
+
+    @staticmethod
+    def key(rx: Receiver):
+        """Receivers with equal keys run identical audio chains (None: cannot be batched)."""
+        back = rx.back
+        if rx.channel.mode != "envelope" or back.agc or len(back.post) != 2:
+            return None
+        normaliser, merged = back.post
+        if not isinstance(normaliser, CarrierNormaliser) or normaliser.check_carrier or not normaliser.normalise:
+            return None
+        if not hasattr(merged, "stage"):
+            return None
+        r = back.resampler
+        return (rx.design.channel_rate_hz, normaliser.design.num_taps, float(normaliser.design.taps.sum()),
+                merged.stage.taps.tobytes(), merged.stage.fft_size, r.up, r.down, r.taps.tobytes(),
+                back.audio_gain, back.trim_samples)
+
+    def _valid(self, count: int):
+        first = self.detector_out
+        stop = np.inf if self.real_total is None else self.real_total
+        self.detector_out += count
+        if first + count <= stop:
+            return None
+        idx = first + np.arange(count)
+        return idx < stop
+
+    def run(self, rows: list[np.ndarray], count_level: bool = True) -> np.ndarray:
+        """Process one block of every member's baseband; returns the audio rows (before trimming)."""
+        if not count_level and self.real_total is None:
+            self.real_total = self.baseband
+        for rx, row in zip(self.rxs, rows):
+            rx.back.account(row, count_level)
+        if count_level:
+            self.baseband += rows[0].size
+        d = np.abs(np.stack(rows)).astype(np.float32)
+        for rx, row in zip(self.rxs, d):
+            tap = rx.back.taps.get("detector")
+            if tap is not None and row.size:
+                tap.feed(row)
+        d = self.normaliser.process(d, self._valid(d.shape[1]))
+        d = self.fir.process(d) * self.gain
+        return self.resampler.process(d)
+
+    def process(self, rows: list[np.ndarray]) -> list[np.ndarray]:
+        audio = self.run(rows)
+        return [rx._emit(rx.back._trim.process(a)) for rx, a in zip(self.rxs, audio)]
+
+    def finish(self, tails: list[np.ndarray], rests: list[np.ndarray]) -> list[np.ndarray]:
+        """The batch form of :meth:`Receiver.finish_baseband`."""
+        lead = self.rxs[0]
+        for rx in self.rxs:
+            rx._warn_if_short()
+        real_left = -(-lead.samples_in // lead.design.decimation) - lead.back.baseband_samples
+        real_left = max(0, min(real_left, tails[0].size))
+        parts = [self.run([t[:real_left] for t in tails]), self.run([t[real_left:] for t in tails], False),
+                 self.run(rests, False)]
+        out = []
+        for i, rx in enumerate(self.rxs):
+            audio = rx.back._trim.process(np.concatenate([p[i] for p in parts]).astype(np.float32))
+            need = max(0, rx.expected_audio_samples - rx.audio_out)
+            if audio.size < need:
+                audio = np.concatenate([audio, np.zeros(need - audio.size, np.float32)])
+            out.append(rx._emit(audio[:need], at_end=True))
+        return out
 
 
 class Extractor:
@@ -128,6 +219,15 @@ class Extractor:
             rx.design.fft_size = self.bank.fft_size
             rx.design.fft_hop = self.bank.hop
         self.mixers = [Mixer(rx.design.channel_rate_hz, self.bank.residual_hz(i)) for i, rx in enumerate(receivers)]
+        # channels with identical envelope chains run as one batch (one set of calls per block for all)
+        groups: dict = {}
+        for i, rx in enumerate(receivers):
+            key = _AmBatch.key(rx)
+            if key is not None:
+                groups.setdefault(key, []).append(i)
+        self.batches = [_AmBatch(members, receivers) for members in groups.values() if len(members) > 1]
+        batched = {i for b in self.batches for i in b.members}
+        self.singles = [i for i in range(len(receivers)) if i not in batched]
         self.input_spectrum = None
         if spectra:
             self.input_spectrum = input_tap(rate_hz, center_hz or 0.0, real_input)
@@ -152,10 +252,15 @@ class Extractor:
         if self.input_spectrum is not None and block.size:
             self.input_spectrum.feed(block)
         outs = self.bank.process(block)
-        audio = []
-        for rx, mixer, bb in zip(self.receivers, self.mixers, outs):
+        baseband = [mixer.process(bb) for mixer, bb in zip(self.mixers, outs)]
+        audio: list = [None] * len(self.receivers)
+        for rx in self.receivers:
             rx.samples_in += block.shape[0]
-            audio.append(rx.process_baseband(mixer.process(bb)))
+        for i in self.singles:
+            audio[i] = self.receivers[i].process_baseband(baseband[i])
+        for batch in self.batches:
+            for i, a in zip(batch.members, batch.process([baseband[i] for i in batch.members])):
+                audio[i] = a
         return audio
 
     def flush(self) -> list[np.ndarray]:
@@ -163,9 +268,15 @@ class Extractor:
         pad = max(rx.flush_padding for rx in self.receivers)
         tails = self.bank.process(np.zeros(pad, np.complex64))
         flushed = self.bank.flush()
-        audio = []
-        for rx, mixer, tail, rest in zip(self.receivers, self.mixers, tails, flushed):
-            audio.append(rx.finish_baseband(mixer.process(tail), mixer.process(rest)))
+        tails = [mixer.process(t) for mixer, t in zip(self.mixers, tails)]
+        flushed = [mixer.process(r) for mixer, r in zip(self.mixers, flushed)]
+        audio: list = [None] * len(self.receivers)
+        for i in self.singles:
+            audio[i] = self.receivers[i].finish_baseband(tails[i], flushed[i])
+        for batch in self.batches:
+            done = batch.finish([tails[i] for i in batch.members], [flushed[i] for i in batch.members])
+            for i, a in zip(batch.members, done):
+                audio[i] = a
         return audio
 
     def stream(self, blocks) -> Iterator[list[np.ndarray]]:

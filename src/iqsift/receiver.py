@@ -604,6 +604,12 @@ class ChannelBackEnd:
         ``count_level=False`` marks padding pushed in at the end (not signal): it is excluded from
         the level measurement and from the carrier-level estimate.
         """
+        self.account(baseband, count_level)
+        return self._post(self.detector.process(baseband), final=False)
+
+    def account(self, baseband: np.ndarray, count_level: bool = True) -> None:
+        """The bookkeeping of :meth:`process` without the signal processing: level, taps, baseband
+        writer, analyzer, squelch (used as well when a batch of identical channels is processed at once)."""
         if not count_level and self._real_total is None:
             self._real_total = self.baseband_samples
         if count_level and baseband.size:
@@ -623,7 +629,6 @@ class ChannelBackEnd:
             self.analyzer.feed_baseband(baseband)
         if self.squelch is not None and baseband.size and count_level:
             self.squelch.feed(baseband)
-        return self._post(self.detector.process(baseband), final=False)
 
     def flush(self) -> np.ndarray:
         """Release what the detector and post stages hold."""
@@ -893,12 +898,7 @@ class Receiver:
     def finish_baseband(self, tail: np.ndarray, flushed: np.ndarray) -> np.ndarray:
         """Finish from the front end's output for the end padding (``tail``) and its flush."""
         expected = int(round(self.samples_in * self.audio_rate_hz / self.rate_hz))
-        settle = int(math.ceil(self.back.delay_s * self.rate_hz))
-        if self.samples_in < settle:
-            warnings.warn(
-                f"channel {self.channel.name!r}: {self.samples_in} input samples are fewer than the receiver needs "
-                f"to settle ({settle} samples, {self.back.delay_s * 1e3:.1f} ms); the audio and the level are "
-                "mostly filter start-up", IqsiftWarning)
+        self._warn_if_short()
         # baseband samples that still belong to the input (the front end emits ceil(n / D) of them)
         real_left = -(-self.samples_in // self.design.decimation) - self.back.baseband_samples
         real_left = max(0, min(real_left, tail.size))
@@ -912,6 +912,19 @@ class Receiver:
         if audio.size < need:
             audio = np.concatenate([audio, np.zeros(need - audio.size, np.float32)])
         return self._emit(audio[:need], at_end=True)
+
+    def _warn_if_short(self) -> None:
+        settle = int(math.ceil(self.back.delay_s * self.rate_hz))
+        if self.samples_in < settle:
+            warnings.warn(
+                f"channel {self.channel.name!r}: {self.samples_in} input samples are fewer than the receiver needs "
+                f"to settle ({settle} samples, {self.back.delay_s * 1e3:.1f} ms); the audio and the level are "
+                "mostly filter start-up", IqsiftWarning)
+
+    @property
+    def expected_audio_samples(self) -> int:
+        """Audio samples the whole run yields: round(samples_in × audio rate / input rate)."""
+        return int(round(self.samples_in * self.audio_rate_hz / self.rate_hz))
 
     def stream(self, blocks) -> Iterator[np.ndarray]:
         """Run over an iterable of IQ blocks, yielding audio blocks; flushes at the end."""
