@@ -18,12 +18,13 @@ from typing import Any, Iterator, Sequence
 import numpy as np
 
 from .channel import Channel
+from .dsp.batch import BatchFir
 from .dsp.channelizer import FastConvChannelizer
-from .dsp.stages import Mixer
+from .dsp.post import CarrierNormaliser
+from .dsp.stages import Mixer, _UpFirDn
 from .errors import ParameterError
 from .plan import ChannelPlan, PlannedChannel
-from .dsp.post import CarrierNormaliser
-from .receiver import Receiver, bank_channel, input_tap
+from .receiver import Receiver, bank_channel, input_tap, valid_mask
 
 __all__ = ["Extractor", "channels_from_plan"]
 
@@ -57,22 +58,21 @@ class _AmBatch:
     """Envelope-detected AM channels with identical chains, processed together as rows of 2-D arrays.
 
     The detector, carrier normaliser, band-pass and resampler of every member are the same filters with
-    the same taps, so one set of calls per block serves them all (:mod:`iqsift.dsp.batch`); the
+    the same taps, so one set of calls per block serves them all (the stages take one channel per row); the
     per-channel parts (level, taps, analyzer, squelch, fades, writers) stay with each channel's receiver.
     """
 
     def __init__(self, members: list[int], receivers: list[Receiver]) -> None:
-        from .dsp.batch import BatchCarrierNormaliser, BatchFir, BatchUpFirDn
-
         self.members = members
         self.rxs = [receivers[i] for i in members]
         lead = self.rxs[0].back
         rows = len(members)
         normaliser, merged = lead.post
-        self.normaliser = BatchCarrierNormaliser(normaliser, rows)
-        self.fir = BatchFir(merged.stage.taps, rows, merged.stage.fft_size)
+        # the lead channel's own stages, made for all rows (same taps, fresh state)
+        self.normaliser = normaliser.for_rows(rows)
+        self.fir = merged.stage.for_rows(rows)
         r = lead.resampler
-        self.resampler = BatchUpFirDn(r.taps, r.up, r.down, rows)
+        self.resampler = _UpFirDn(r.taps.astype(np.float32), r.up, r.down)
         self.gain = np.float32(lead.audio_gain)
         self.detector_out = 0
         self.real_total: int | None = None
@@ -87,21 +87,17 @@ class _AmBatch:
         normaliser, merged = back.post
         if not isinstance(normaliser, CarrierNormaliser) or normaliser.check_carrier or not normaliser.normalise:
             return None
-        if not hasattr(merged, "stage"):
+        if not isinstance(getattr(merged, "stage", None), BatchFir):
             return None
         r = back.resampler
-        return (rx.design.channel_rate_hz, normaliser.design.num_taps, float(normaliser.design.taps.sum()),
-                merged.stage.taps.tobytes(), merged.stage.fft_size, r.up, r.down, r.taps.tobytes(),
+        return (rx.design.channel_rate_hz, tuple(sorted(normaliser._args.items())),
+                merged.stage.taps.tobytes(), merged.stage.nfft, r.up, r.down, r.taps.tobytes(),
                 back.audio_gain, back.trim_samples)
 
     def _valid(self, count: int):
         first = self.detector_out
-        stop = np.inf if self.real_total is None else self.real_total
         self.detector_out += count
-        if first + count <= stop:
-            return None
-        idx = first + np.arange(count)
-        return idx < stop
+        return valid_mask(first, count, 0, self.real_total)  # the envelope detector has no delay
 
     def run(self, rows: list[np.ndarray], count_level: bool = True) -> np.ndarray:
         """Process one block of every member's baseband; returns the audio rows (before trimming)."""
@@ -126,21 +122,13 @@ class _AmBatch:
 
     def finish(self, tails: list[np.ndarray], rests: list[np.ndarray]) -> list[np.ndarray]:
         """The batch form of :meth:`Receiver.finish_baseband`."""
-        lead = self.rxs[0]
         for rx in self.rxs:
             rx._warn_if_short()
-        real_left = -(-lead.samples_in // lead.design.decimation) - lead.back.baseband_samples
-        real_left = max(0, min(real_left, tails[0].size))
+        real_left = self.rxs[0].real_baseband_left(tails[0].size)  # the same for every member
         parts = [self.run([t[:real_left] for t in tails]), self.run([t[real_left:] for t in tails], False),
                  self.run(rests, False)]
-        out = []
-        for i, rx in enumerate(self.rxs):
-            audio = rx.back._trim.process(np.concatenate([p[i] for p in parts]).astype(np.float32))
-            need = max(0, rx.expected_audio_samples - rx.audio_out)
-            if audio.size < need:
-                audio = np.concatenate([audio, np.zeros(need - audio.size, np.float32)])
-            out.append(rx._emit(audio[:need], at_end=True))
-        return out
+        return [rx.emit_last(rx.back._trim.process(np.concatenate([p[i] for p in parts])))
+                for i, rx in enumerate(self.rxs)]
 
 
 class Extractor:

@@ -44,8 +44,9 @@ from .dsp.channelizer import (
 )
 from .dsp.design import LowpassDesign, design_lowpass, design_resampler, plan_decimation
 from .dsp.detectors import make_detector
+from .dsp.batch import BatchFir
 from .dsp.post import CarrierNormaliser, DelayTrim, FractionalDelay, Squelch, _long_fft
-from .dsp.stages import AGC, AudioBandpass, FirDecimator, FirFilter, Mixer, RationalResampler
+from .dsp.stages import AGC, AudioBandpass, FirDecimator, Mixer, RationalResampler
 from .errors import IqsiftWarning, ParameterError
 
 __all__ = ["ChannelDesign", "design_channel", "ChannelBackEnd", "Receiver", "ReceiverResult", "TAP_NAMES"]
@@ -450,6 +451,16 @@ def bank_channel(design: ChannelDesign) -> BankChannel:
 # ----------------------------------------------------------------------------------------------
 # Back end (channel baseband → audio)
 # ----------------------------------------------------------------------------------------------
+def valid_mask(first: int, count: int, lag: int, real_total: int | None) -> np.ndarray | None:
+    """Which of detector outputs ``first .. first + count − 1`` stem from real input: not the detector's
+    start-up (``lag`` samples) nor the padding after the ``real_total`` input samples. None: all do."""
+    stop = np.inf if real_total is None else real_total + lag
+    if first >= lag and first + count <= stop:
+        return None  # all valid (the usual case): no mask needed
+    idx = first + np.arange(count)
+    return (idx >= lag) & (idx < stop)
+
+
 class _Delayed:
     """A stage with its delay stated by its builder (for merged filters)."""
 
@@ -543,7 +554,7 @@ class ChannelBackEnd:
             # one linear-phase FIR for both: the band-pass convolved with the fractional delay
             band = self.post.pop()
             joint = np.convolve(band.taps, fractional.taps)
-            merged = FirFilter(joint, rate, method="fft", fft_size=_long_fft(joint.size), single=True)
+            merged = BatchFir(joint, 1, _long_fft(joint.size))
             self.post.append(_Delayed(merged, band.delay + fractional.delay))
         else:
             self.post.append(fractional)
@@ -569,13 +580,8 @@ class ChannelBackEnd:
     def _valid(self, count: int) -> np.ndarray:
         """Which of the next ``count`` detector outputs stem from real input (not start-up or padding)."""
         first = self._detector_out
-        lag = int(round(self.detector.delay))
-        stop = np.inf if self._real_total is None else self._real_total + lag
         self._detector_out += count
-        if first >= lag and first + count <= stop:
-            return None  # all valid (the usual case): no mask needed
-        idx = first + np.arange(count)
-        return (idx >= lag) & (idx < stop)
+        return valid_mask(first, count, int(round(self.detector.delay)), self._real_total)
 
     def _post(self, d: np.ndarray, final: bool) -> np.ndarray:
         tap = self.taps.get("detector")
@@ -897,18 +903,23 @@ class Receiver:
 
     def finish_baseband(self, tail: np.ndarray, flushed: np.ndarray) -> np.ndarray:
         """Finish from the front end's output for the end padding (``tail``) and its flush."""
-        expected = int(round(self.samples_in * self.audio_rate_hz / self.rate_hz))
         self._warn_if_short()
-        # baseband samples that still belong to the input (the front end emits ceil(n / D) of them)
-        real_left = -(-self.samples_in // self.design.decimation) - self.back.baseband_samples
-        real_left = max(0, min(real_left, tail.size))
+        real_left = self.real_baseband_left(tail.size)
         pieces = [self.back.process(tail[:real_left]), self.back.process(tail[real_left:], count_level=False)]
         pieces.append(self.back.process(flushed, count_level=False))
         pieces.append(self.back.flush())
-        audio = np.concatenate(pieces).astype(np.float32)
-        need = expected - self.audio_out
-        if need < 0:
-            need = 0
+        return self.emit_last(np.concatenate(pieces))
+
+    def real_baseband_left(self, available: int) -> int:
+        """How many of the next ``available`` baseband samples still stem from the input (the front end
+        emits ceil(n / D) of them for n input samples); the rest is end padding."""
+        left = -(-self.samples_in // self.design.decimation) - self.back.baseband_samples
+        return max(0, min(left, available))
+
+    def emit_last(self, audio: np.ndarray) -> np.ndarray:
+        """Emit the final audio, cut or zero-padded to round(samples_in × audio rate / input rate) in all."""
+        audio = np.asarray(audio, dtype=np.float32)
+        need = max(0, self.expected_audio_samples - self.audio_out)
         if audio.size < need:
             audio = np.concatenate([audio, np.zeros(need - audio.size, np.float32)])
         return self._emit(audio[:need], at_end=True)

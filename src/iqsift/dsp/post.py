@@ -12,6 +12,7 @@ from __future__ import annotations
 import numpy as np
 
 from .design import design_lowpass
+from .batch import BatchFir
 from .stages import FirFilter
 
 __all__ = ["CarrierNormaliser", "DelayTrim", "FractionalDelay", "Squelch"]
@@ -62,6 +63,8 @@ class CarrierNormaliser(_SameRate):
         this many dB: when the carrier goes away (push-to-talk off, deep
         fade) the noise is not amplified to full scale, like an AM receiver's
         AGC at its gain limit.
+    rows : int
+        Channels processed together, one per row of a 2-D block.
     normalise : bool
         Divide by the level (AM with carrier). Without it the stage is a
         linear-phase DC remover ``d − LPF(d)``: unlike a one-pole DC blocker
@@ -73,6 +76,8 @@ class CarrierNormaliser(_SameRate):
     The signal path is delayed by the low-pass's group delay ``(N−1)/2``
     (an integer: N is odd) so that ``d`` and ``c`` line up; that is
     :attr:`delay`. The stage holds nothing at the end (flush is empty).
+    Blocks may be 1-D (one channel) or 2-D with one channel per row
+    (``rows``), all rows sharing the same validity mask.
     """
 
     def __init__(
@@ -85,19 +90,28 @@ class CarrierNormaliser(_SameRate):
         normalise: bool = True,
         max_gain_db: float = 30.0,
         check_carrier: bool = True,
+        rows: int = 1,
     ) -> None:
+        self._args = dict(rate_hz=rate_hz, pass_hz=pass_hz, stop_hz=stop_hz, atten_db=atten_db, floor=floor,
+                          normalise=normalise, max_gain_db=max_gain_db, check_carrier=check_carrier)
         stop_hz = min(stop_hz, 0.45 * rate_hz)
         pass_hz = min(pass_hz, 0.5 * stop_hz)
         self.design = design_lowpass(rate_hz, pass_hz, stop_hz, ripple_db=0.5, atten_db=atten_db, method="kaiser")
-        self._lp = FirFilter(self.design.taps, rate_hz, method="fft", fft_size=_long_fft(self.design.num_taps),
-                             single=True)
-        self._lag = int(round(self.design.group_delay_samples))
+        self.rows = int(rows)
         self.rate_hz = float(rate_hz)
         self.floor = float(floor)
         self.normalise = bool(normalise)
         self.check_carrier = bool(check_carrier) and self.normalise
         self.max_gain = 10 ** (-max_gain_db / 20)
+        self._lag = int(round(self.design.group_delay_samples))
+        # the level (and, to check for a carrier, the mean square) of every row: one filter run
+        self._lp = BatchFir(self.design.taps, self.rows * (2 if self.check_carrier else 1),
+                            _long_fft(self.design.num_taps))
         self.reset()
+
+    def for_rows(self, rows: int) -> "CarrierNormaliser":
+        """The same normaliser for ``rows`` channels processed together."""
+        return CarrierNormaliser(rows=rows, **self._args)
 
     @property
     def delay(self) -> float:
@@ -109,69 +123,65 @@ class CarrierNormaliser(_SameRate):
         self._cover = FirFilter(self.design.taps, self.rate_hz)
         self._run = 0  # consecutive valid samples fed most recently
         self._cover_stale = False
-        self._history = np.zeros(self._lag, np.float32)
+        self._history = np.zeros((self.rows, self._lag), np.float32)
         self.last_level = None
-        self._strongest = 0.0
+        self._strongest = np.zeros((self.rows, 1), np.float32)
+
+    def _coverage(self, n: int, valid: np.ndarray | None) -> np.ndarray | None:
+        """LPF of the validity mask (None where it is 1 everywhere, the steady state of most blocks)."""
+        ntaps = self.design.num_taps
+        if valid is None or bool(np.all(valid)):
+            self._run += n
+            if self._run - n >= ntaps:
+                # the cover filter has seen only valid samples for a whole filter length: its output is 1
+                self._cover_stale = True
+                return None
+            return np.asarray(self._cover.process(np.ones(n, np.float32)), dtype=np.float32)
+        v = np.asarray(valid, dtype=np.float32)
+        if self._cover_stale:  # bring the skipped cover filter back: its history is all ones
+            self._cover.reset()
+            self._cover.process(np.ones(ntaps, np.float32))
+            self._cover_stale = False
+        last_invalid = np.flatnonzero(v == 0)
+        self._run = n - 1 - int(last_invalid[-1]) if last_invalid.size else self._run + n
+        return np.asarray(self._cover.process(v), dtype=np.float32)
 
     def process(self, block: np.ndarray, valid: np.ndarray | None = None) -> np.ndarray:
-        """Process a block; ``valid`` marks the samples that carry signal (default: all).
+        """Process a block (1-D, or rows × n); ``valid`` marks the samples that carry signal (default: all).
 
         The level is a normalised convolution (Knutsson & Westin 1993):
         ``LPF(d·v) / LPF(v)``, so the start and end of a stream (and gaps
         marked invalid) do not drag the level towards zero.
         """
         d = np.asarray(block, dtype=np.float32)
-        if d.size == 0:
-            return np.zeros(0, np.float32)
-        all_valid = valid is None or bool(np.all(valid))
-        ntaps = self.design.num_taps
-        cover = None  # None: 1 everywhere (the steady state, most blocks)
-        if all_valid:
-            dv = d
-            if self._run >= ntaps:
-                # the cover filter has seen only valid samples for a whole filter length: its output is 1
-                self._cover_stale = True
-            else:
-                cover = np.asarray(self._cover.process(np.ones(d.size, np.float32)), dtype=np.float32)
-            self._run += d.size
-        else:
-            v = np.asarray(valid, dtype=np.float32)
-            dv = d * v
-            if self._cover_stale:  # bring the skipped cover filter back: its history is all ones
-                self._cover.reset()
-                self._cover.process(np.ones(ntaps, np.float32))
-                self._cover_stale = False
-            cover = np.asarray(self._cover.process(v), dtype=np.float32)
-            last_invalid = np.flatnonzero(v == 0)
-            self._run = d.size - 1 - int(last_invalid[-1]) if last_invalid.size else self._run + d.size
+        flat = d.ndim == 1
+        d = d.reshape(1, -1) if flat else d
+        n = d.shape[1]
+        if n == 0:
+            return np.zeros(0 if flat else (self.rows, 0), np.float32)
+        cover = self._coverage(n, valid)
+        dv = d if valid is None or cover is None else d * np.asarray(valid, dtype=np.float32)
         if self.check_carrier:
-            # level and mean square through one complex filter run (real taps: the real and imaginary
-            # parts are filtered independently)
-            pair = np.empty(d.size, np.complex64)
-            pair.real = dv
-            pair.imag = dv * d
-            both = np.asarray(self._lp.process(pair))
-            level = np.ascontiguousarray(both.real, dtype=np.float32)
-            power = np.ascontiguousarray(both.imag, dtype=np.float32)
+            both = self._lp.process(np.concatenate([dv, dv * d]))
+            level, power = both[: self.rows], both[self.rows :]
         else:
-            level = np.asarray(self._lp.process(dv), dtype=np.float32)
-            power = None
+            level, power = self._lp.process(dv), None
         if cover is not None:
             ok = cover > 1e-3
             safe = np.maximum(cover, np.float32(1e-3))
             level = np.where(ok, level / safe, np.float32(0))
             if power is not None:
                 power = np.where(ok, power / safe, np.float32(0))
-        joined = np.concatenate([self._history, d])
-        delayed = joined[: d.size]
-        self._history = joined[d.size :]
-        self.last_level = float(level[-1])
+        joined = np.concatenate([self._history, d], axis=1)
+        delayed = joined[:, :n]
+        self._history = joined[:, n:]
+        self.last_level = float(level[0, -1])
         out = delayed - level
         if self.normalise:
             magnitude = np.abs(level)
-            running = np.maximum.accumulate(magnitude)
-            np.maximum(running, np.float32(self._strongest), out=running)
-            self._strongest = float(running[-1])
+            running = np.maximum.accumulate(magnitude, axis=1)
+            np.maximum(running, self._strongest, out=running)
+            self._strongest = running[:, -1:].copy()
             # carrier present: the mean of the detector output is most of its RMS (1/sqrt(1 + m^2/2) >= 0.8
             # for a tone at m <= 1). Without a carrier (a coherent detector fed only noise, the mean near 0)
             # dividing by the mean would blow the noise up: divide by 3 x the RMS instead (noise at -10 dBFS).
@@ -182,7 +192,8 @@ class CarrierNormaliser(_SameRate):
                 divisor = magnitude
             np.maximum(divisor, np.maximum(running * np.float32(self.max_gain), np.float32(self.floor)), out=divisor)
             out /= divisor
-        return out.astype(np.float32)
+        out = out.astype(np.float32)
+        return out[0] if flat else out
 
     def flush(self) -> np.ndarray:
         self.reset()
