@@ -42,7 +42,7 @@ from .dsp.channelizer import (
     power_of_two_decimation,
     smooth_numbers,
 )
-from .dsp.design import LowpassDesign, design_lowpass, design_resampler, plan_decimation
+from .dsp.design import LowpassDesign, design_lowpass, design_resampler, filter_summary, plan_decimation
 from .dsp.detectors import make_detector
 from .dsp.batch import BatchFir
 from .dsp.post import CarrierNormaliser, DelayTrim, FractionalDelay, Squelch, _long_fft
@@ -141,45 +141,22 @@ class ChannelDesign:
                 "rate_in_hz": self.rate_hz,
                 "rate_out_hz": self.channel_rate_hz,
                 "down": self.decimation,
-                "num_taps": p.num_taps,
-                "method": p.method,
                 "fft_size": n,
                 "hop": hop,
                 "mix_hz": self.carrier_offset_hz,
                 "filter_centre_hz": self.filter_centre_hz,
                 "channel_passband_hz": [lo, hi],
-                "passband_hz": p.passband_hz,
-                "stopband_hz": p.stopband_hz,
-                "ripple_db": p.ripple_db,
-                "atten_db": p.atten_db,
-                "measured_ripple_db": p.measured_ripple_db,
-                "measured_atten_db": p.measured_atten_db,
-                "group_delay_s": p.group_delay_s,
+                **filter_summary(p),
                 "macs_per_input_sample": fwd + inv,
                 "macs_per_chain_input_sample": fwd + inv,
             })
         else:
             for stage in self.polyphase_plan.stages:
-                lp = stage.lowpass
-                out.append({
-                    "name": f"FIR decimator /{stage.down}" + (" (translating)" if stage.index == 0 else ""),
-                    "kind": "fir_decimator",
-                    "rate_in_hz": stage.rate_in_hz,
-                    "rate_out_hz": stage.rate_out_hz,
-                    "down": stage.down,
-                    "num_taps": lp.num_taps,
-                    "method": lp.method,
-                    "mix_hz": self.filter_centre_hz if stage.index == 0 else None,
-                    "passband_hz": lp.passband_hz,
-                    "stopband_hz": lp.stopband_hz,
-                    "ripple_db": lp.ripple_db,
-                    "atten_db": lp.atten_db,
-                    "measured_ripple_db": lp.measured_ripple_db,
-                    "measured_atten_db": lp.measured_atten_db,
-                    "group_delay_s": lp.group_delay_s,
-                    "macs_per_input_sample": stage.macs_per_input_sample,
-                    "macs_per_chain_input_sample": stage.macs_per_chain_input_sample,
-                })
+                entry = stage.to_dict()
+                del entry["lowpass"]
+                entry["name"] = f"FIR decimator /{stage.down}" + (" (translating)" if stage.index == 0 else "")
+                entry["mix_hz"] = self.filter_centre_hz if stage.index == 0 else None
+                out.append(entry)
         ch_rate = self.channel_rate_hz
         out.append({"name": f"detector ({self.channel.mode})", "kind": "detector", "rate_in_hz": ch_rate,
                     "rate_out_hz": ch_rate})

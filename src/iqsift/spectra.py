@@ -52,7 +52,6 @@ from __future__ import annotations
 
 import math
 import os
-import tempfile
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Callable, Iterator, NamedTuple
@@ -61,7 +60,7 @@ import numpy as np
 import scipy.fft
 import scipy.signal
 
-from .errors import OutputExistsError, ParameterError
+from .errors import ParameterError
 
 __all__ = [
     "Spectrum",
@@ -92,35 +91,10 @@ def _to_db(power: np.ndarray) -> np.ndarray:
 
 
 def _atomic_write(path: str | os.PathLike, write: Callable[[Any], None], *, binary: bool, force: bool = True) -> Path:
-    """Write a file through a hidden temporary file in the same folder, then ``os.replace``.
+    """Write a file atomically (see :func:`iqsift.captures.atomic.write_atomically`)."""
+    from .captures.atomic import write_atomically
 
-    ``write`` receives an open file object (bytes or text). Nothing is left behind if
-    it raises. With ``force`` false an existing file is refused.
-    """
-    final = Path(path)
-    if final.is_dir():
-        raise ParameterError(f"{final}: is a directory; give a file name for the output")
-    parent = final.parent if str(final.parent) else Path(".")
-    if not parent.is_dir():
-        raise ParameterError(f"{final}: the folder {parent} does not exist")
-    if final.exists() and not force:
-        raise OutputExistsError(f"{final}: exists; pass force=True to overwrite it")
-    handle, tmp = tempfile.mkstemp(prefix=f".{final.name}.", suffix=".part", dir=parent)
-    try:
-        with os.fdopen(handle, "wb" if binary else "w", **({} if binary else {"encoding": "utf-8", "newline": ""})) as fh:
-            write(fh)
-        # mkstemp creates 0600; give the file the permissions an ordinary open() would.
-        umask = os.umask(0)
-        os.umask(umask)
-        os.chmod(tmp, 0o666 & ~umask)
-        os.replace(tmp, final)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except FileNotFoundError:
-            pass
-        raise
-    return final
+    return write_atomically(path, write, binary=binary, force=force)
 
 
 def _check_rate(rate_hz: float, name: str = "rate_hz") -> float:

@@ -15,7 +15,7 @@ from pathlib import Path
 
 from ..errors import OutputExistsError, ParameterError
 
-__all__ = ["OutputSet", "check_output_path"]
+__all__ = ["OutputSet", "check_output_path", "write_atomically"]
 
 
 def _current_umask() -> int:
@@ -136,3 +136,16 @@ class OutputSet:
             self.commit()
         else:
             self.abort()
+
+
+def write_atomically(path: str | os.PathLike, write, *, binary: bool, force: bool = False) -> Path:
+    """Write one file through an :class:`OutputSet`: ``write`` gets the open temporary file (bytes or text).
+
+    Nothing is left behind if ``write`` raises; an existing file is refused unless ``force``.
+    """
+    with OutputSet(force=force) as outputs:
+        temp = outputs.reserve(path)
+        mode = {"mode": "wb"} if binary else {"mode": "w", "encoding": "utf-8", "newline": ""}
+        with open(temp, **mode) as handle:
+            write(handle)
+    return Path(path)

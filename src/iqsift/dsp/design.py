@@ -442,6 +442,21 @@ class LowpassDesign:
         return out
 
 
+def filter_summary(lp: LowpassDesign) -> dict[str, Any]:
+    """A filter's main figures as stage-table fields (method, taps, edges, ripple, attenuation, delay)."""
+    return {
+        "method": lp.method,
+        "num_taps": lp.num_taps,
+        "passband_hz": lp.passband_hz,
+        "stopband_hz": lp.stopband_hz,
+        "ripple_db": lp.ripple_db,
+        "atten_db": lp.atten_db,
+        "measured_ripple_db": _json_float(lp.measured_ripple_db),
+        "measured_atten_db": _json_float(lp.measured_atten_db),
+        "group_delay_s": lp.group_delay_s,
+    }
+
+
 def _kaiser_taps(num_taps: int, cutoff_hz: float, rate_hz: float, beta: float) -> np.ndarray:
     """Windowed ideal low-pass ``(wc/pi) sinc(wc n/pi)`` times a Kaiser window, unity DC gain."""
     n = np.arange(num_taps, dtype=np.float64) - (num_taps - 1) / 2.0
@@ -692,15 +707,7 @@ class StageDesign:
             "rate_out_hz": self.rate_out_hz,
             "down": self.down,
             "up": self.up,
-            "method": lp.method,
-            "num_taps": lp.num_taps,
-            "passband_hz": lp.passband_hz,
-            "stopband_hz": lp.stopband_hz,
-            "ripple_db": lp.ripple_db,
-            "atten_db": lp.atten_db,
-            "measured_ripple_db": _json_float(lp.measured_ripple_db),
-            "measured_atten_db": _json_float(lp.measured_atten_db),
-            "group_delay_s": lp.group_delay_s,
+            **filter_summary(lp),
             "macs_per_input_sample": self.macs_per_input_sample,
             "macs_per_chain_input_sample": self.macs_per_chain_input_sample,
             "lowpass": lp.to_dict(include_taps=include_taps),
@@ -1181,15 +1188,7 @@ class ResamplerDesign:
             "rate_error_hz": self.rate_error_hz,
             "up": self.up,
             "down": self.down,
-            "method": lp.method,
-            "num_taps": lp.num_taps,
-            "passband_hz": lp.passband_hz,
-            "stopband_hz": lp.stopband_hz,
-            "ripple_db": lp.ripple_db,
-            "atten_db": lp.atten_db,
-            "measured_ripple_db": _json_float(lp.measured_ripple_db),
-            "measured_atten_db": _json_float(lp.measured_atten_db),
-            "group_delay_s": lp.group_delay_s,
+            **filter_summary(lp),
             "macs_per_input_sample": self.macs_per_input_sample,
             "lowpass": lp.to_dict(include_taps=False),
         }
