@@ -8,7 +8,6 @@ subtracting 2^(bits-1); magnitude 1.0 is full scale.
 
 from __future__ import annotations
 
-import json
 import warnings
 
 import numpy as np
@@ -26,7 +25,7 @@ from iqsift.captures import (
     StatsAccumulator,
     open_capture,
 )
-from iqsift.errors import CaptureError, IqsiftWarning, OutputExistsError, ParameterError
+from iqsift.errors import CaptureError, OutputExistsError, ParameterError
 
 from .conftest import write_sigmf_pair
 

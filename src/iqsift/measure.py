@@ -39,6 +39,7 @@ from typing import Any, ClassVar
 import numpy as np
 from scipy import signal as _signal
 
+from . import checks
 from .errors import ParameterError
 
 __all__ = [
@@ -90,30 +91,15 @@ class _Reportable:
 
 
 def _positive(name: str, value: Any) -> float:
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        raise ParameterError(f"{name}: {value!r} is not a number; it must be a finite value > 0") from None
-    if not math.isfinite(v) or v <= 0.0:
-        raise ParameterError(f"{name}: {value!r} is not allowed; it must be a finite value > 0")
-    return v
+    return checks.positive(name, value)
 
 
 def _finite(name: str, value: Any) -> float:
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        raise ParameterError(f"{name}: {value!r} is not a number; it must be finite") from None
-    if not math.isfinite(v):
-        raise ParameterError(f"{name}: {value!r} is not allowed; it must be finite")
-    return v
+    return checks.finite(name, value)
 
 
 def _nonnegative(name: str, value: Any) -> float:
-    v = _finite(name, value)
-    if v < 0.0:
-        raise ParameterError(f"{name}: {value!r} is not allowed; it must be >= 0")
-    return v
+    return checks.nonnegative(name, value)
 
 
 def _array_1d(name: str, x: Any, dtype: Any, min_len: int = 1) -> np.ndarray:

@@ -60,6 +60,7 @@ import numpy as np
 import scipy.fft
 import scipy.signal
 
+from . import checks
 from .errors import ParameterError
 
 __all__ = [
@@ -98,13 +99,7 @@ def _atomic_write(path: str | os.PathLike, write: Callable[[Any], None], *, bina
 
 
 def _check_rate(rate_hz: float, name: str = "rate_hz") -> float:
-    try:
-        rate = float(rate_hz)
-    except (TypeError, ValueError):
-        raise ParameterError(f"{name}: must be a sample rate in Hz, got {rate_hz!r}") from None
-    if not math.isfinite(rate) or rate <= 0:
-        raise ParameterError(f"{name}: must be a finite rate > 0 Hz, got {rate_hz!r}")
-    return rate
+    return checks.positive(name, rate_hz)
 
 
 def _check_int(value: Any, name: str, minimum: int) -> int:

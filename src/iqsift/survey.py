@@ -1056,7 +1056,7 @@ def _channel_width(cls: str, needed_hz: float) -> float:
 
 
 def _measure(sv: Surveyor, g: _Group, ctx: _Ctx, index: int) -> Emission:
-    f, p, floor, excess, dc_bins, spec = ctx.f, ctx.p, ctx.floor, ctx.excess, ctx.dc_bins, ctx.spec
+    f, p, excess, dc_bins, spec = ctx.f, ctx.p, ctx.excess, ctx.dc_bins, ctx.spec
     fine_data, ratio = ctx.fine, ctx.ratio
     df = spec.bin_width_hz
     n = p.size

@@ -53,6 +53,7 @@ import numpy as np
 from scipy import fft as sp_fft
 from scipy import signal
 
+from .. import checks
 from ..errors import IqsiftError, ParameterError
 
 __all__ = [
@@ -100,13 +101,7 @@ _CASCADE_MAX_GRID = 1 << 24
 
 
 def _check_finite_positive(value: float, name: str) -> float:
-    try:
-        result = float(value)
-    except (TypeError, ValueError):
-        raise ParameterError(f"{name}: expected a number, got {value!r}") from None
-    if not math.isfinite(result) or result <= 0:
-        raise ParameterError(f"{name}: must be a finite value > 0, got {value!r}")
-    return result
+    return checks.positive(name, value)
 
 
 def _check_spec(ripple_db: float, atten_db: float) -> tuple[float, float]:

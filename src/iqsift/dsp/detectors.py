@@ -57,6 +57,7 @@ import numpy as np
 from scipy import fft as sfft
 from scipy import signal
 
+from .. import checks
 from ..errors import ParameterError
 
 __all__ = [
@@ -78,23 +79,11 @@ _TWO_PI = 2.0 * math.pi
 
 # ----------------------------------------------------------------------------- validation
 def _finite_positive(name: str, value: float) -> float:
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        raise ParameterError(f"{name}: expected a number, got {value!r}") from None
-    if not math.isfinite(v) or v <= 0.0:
-        raise ParameterError(f"{name}: got {value!r}; it must be a finite number > 0")
-    return v
+    return checks.positive(name, value)
 
 
 def _finite(name: str, value: float) -> float:
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        raise ParameterError(f"{name}: expected a number, got {value!r}") from None
-    if not math.isfinite(v):
-        raise ParameterError(f"{name}: got {value!r}; it must be a finite number")
-    return v
+    return checks.finite(name, value)
 
 
 def _as_block(block) -> np.ndarray:

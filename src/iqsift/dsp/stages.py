@@ -47,7 +47,8 @@ import scipy.fft as sfft
 import scipy.signal as ssig
 from numpy.lib.stride_tricks import sliding_window_view
 
-from iqsift.errors import ParameterError
+from .. import checks
+from ..errors import ParameterError
 
 __all__ = [
     "Stage",
@@ -76,33 +77,15 @@ __all__ = [
 
 
 def _check_rate(name: str, value: float) -> float:
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        raise ParameterError(f"{name}: expected a sample rate in Hz, got {value!r}") from None
-    if not math.isfinite(v) or v <= 0.0:
-        raise ParameterError(f"{name}: sample rate must be finite and > 0 Hz, got {value!r}")
-    return v
+    return checks.positive(name, value)
 
 
 def _check_freq(name: str, value: float) -> float:
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        raise ParameterError(f"{name}: expected a frequency in Hz, got {value!r}") from None
-    if not math.isfinite(v):
-        raise ParameterError(f"{name}: frequency must be finite, got {value!r}")
-    return v
+    return checks.finite(name, value)
 
 
 def _check_int(name: str, value: int, minimum: int = 1) -> int:
-    try:
-        v = operator.index(value)
-    except TypeError:
-        raise ParameterError(f"{name}: expected an integer >= {minimum}, got {value!r}") from None
-    if v < minimum:
-        raise ParameterError(f"{name}: expected an integer >= {minimum}, got {value!r}")
-    return int(v)
+    return checks.whole(name, value, minimum)
 
 
 def _check_taps(name: str, taps) -> np.ndarray:
