@@ -31,11 +31,11 @@ from typing import Any
 import numpy as np
 
 from . import measure
+from .modes import AM_MODES
 from .spectra import WelchAccumulator
 
 __all__ = ["ChannelAnalyzer", "ChannelMeasurement", "measure_channel"]
 
-AM_MODES = ("envelope", "coherent")
 
 _NO_RESULT = (ValueError, ArithmeticError, np.linalg.LinAlgError)
 """What a measurement raises when the data cannot give a result (too short, no tone, no carrier): the

@@ -52,6 +52,7 @@ from dataclasses import asdict, dataclass
 from decimal import ROUND_HALF_UP, Decimal, InvalidOperation
 from typing import Sequence
 
+from .modes import MODES
 from .errors import ParameterError
 
 __all__ = [
@@ -67,8 +68,6 @@ __all__ = [
     "HANDLED_CLASSES",
 ]
 
-#: Detector (demodulation mode) names used throughout iqsift.
-MODES: tuple[str, ...] = ("envelope", "coherent", "usb", "lsb", "dsb")
 
 # Radio Regulations Appendix 1, Section II.
 _FIRST = {

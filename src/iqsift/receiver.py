@@ -47,6 +47,7 @@ from .dsp.detectors import make_detector
 from .dsp.batch import BatchFir
 from .dsp.post import CarrierNormaliser, DelayTrim, FractionalDelay, Squelch, _long_fft
 from .dsp.stages import AGC, AudioBandpass, FirDecimator, Mixer, RationalResampler
+from .modes import AM_MODES
 from .errors import IqsiftWarning, ParameterError
 
 __all__ = ["ChannelDesign", "design_channel", "ChannelBackEnd", "Receiver", "ReceiverResult", "TAP_NAMES"]
@@ -55,7 +56,6 @@ TAP_NAMES = ("input", "channel", "detector", "audio")
 """Tap points where a spectrum accumulator can sit: the wideband input, the channel baseband after
 the front end and fine mixing, the detector output, and the final audio."""
 
-AM_MODES = ("envelope", "coherent")
 AM_AUDIO_GAIN = 0.5
 """AM audio scale: the carrier-normalised message m·s(t) is written as 0.5·m·s(t) (full scale = 200 % modulation)."""
 KEEP_AUDIO_S = 1200.0

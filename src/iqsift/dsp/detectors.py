@@ -59,6 +59,7 @@ from scipy import signal
 
 from .. import checks
 from ..errors import ParameterError
+from ..modes import MODES
 
 __all__ = [
     "DETECTOR_MODES",
@@ -72,7 +73,7 @@ __all__ = [
     "sideband_bandpass_taps",
 ]
 
-DETECTOR_MODES = ("envelope", "coherent", "usb", "lsb", "dsb")
+DETECTOR_MODES = MODES
 
 _TWO_PI = 2.0 * math.pi
 
