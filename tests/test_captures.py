@@ -201,7 +201,7 @@ def test_writers_are_atomic_and_refuse_overwrite(tmp_path):
     with AudioWriter(out, 16000) as writer:
         writer.write(np.zeros(100))
     before = out.read_bytes()
-    with pytest.raises(OutputExistsError, match="--force"):
+    with pytest.raises(OutputExistsError, match="pass force to overwrite"):
         AudioWriter(out, 16000)
     with pytest.raises(RuntimeError):
         with AudioWriter(out, 16000, force=True) as writer:

@@ -217,13 +217,14 @@ def make_channel(
         Mute the audio while the channel is less than this many dB above its noise floor.
     """
     if (freq is None) == (offset is None):
-        raise ParameterError("give exactly one of --freq (absolute, Hz) and --offset (relative to the capture centre)")
+        raise ParameterError("give exactly one of freq (absolute, Hz) and offset (relative to the capture centre)",
+                             parameters=("freq", "offset"))
     if bandwidth is not None and emission is not None:
-        raise ParameterError("give --bandwidth or --emission, not both")
+        raise ParameterError("give bandwidth or emission, not both", parameters=("bandwidth", "emission"))
     if mode is not None:
         mode = str(mode).strip().lower()
         if mode not in MODES:
-            raise ParameterError(f"--mode: got {mode!r}; it must be one of {', '.join(MODES)}")
+            raise ParameterError(f"mode: got {mode!r}; it must be one of {', '.join(MODES)}")
     audio_low = 300.0
     code = None
     if emission is not None:
@@ -231,22 +232,22 @@ def make_channel(
         code = em.code
         bw = em.bandwidth_hz
         if bw is None:
-            raise ParameterError(f"--emission {emission!r}: the designator needs its bandwidth part, e.g. 6K00A3E")
+            raise ParameterError(f"emission: {emission!r} lacks the bandwidth part of the designator; write e.g. 6K00A3E")
         mode = mode or em.mode
         audio_low = em.audio_low_hz
     else:
-        bw = 6000.0 if bandwidth is None else parse_positive_hz(bandwidth, "--bandwidth")
+        bw = 6000.0 if bandwidth is None else parse_positive_hz(bandwidth, "bandwidth")
         mode = mode or "envelope"
     return Channel(
         bandwidth_hz=bw,
         mode=mode,
-        frequency_hz=None if freq is None else parse_frequency(freq, "--freq"),
-        offset_hz=None if offset is None else parse_frequency(offset, "--offset"),
+        frequency_hz=None if freq is None else parse_frequency(freq, "freq"),
+        offset_hz=None if offset is None else parse_frequency(offset, "offset"),
         name=name,
         emission=code,
         audio_low_hz=audio_low,
-        audio_rate_hz=parse_positive_hz(audio_rate, "--audio-rate"),
-        transition_hz=None if transition is None else parse_positive_hz(transition, "--transition"),
+        audio_rate_hz=parse_positive_hz(audio_rate, "audio_rate"),
+        transition_hz=None if transition is None else parse_positive_hz(transition, "transition"),
         audio_band_hz=audio_band,
         squelch_db=squelch_db,
     )

@@ -20,7 +20,20 @@ __all__ = [
 
 
 class IqsiftError(Exception):
-    """Base class of every error iqsift raises on purpose."""
+    """Base class of every error iqsift raises on purpose.
+
+    Parameters
+    ----------
+    message : str
+        What is wrong, in the caller's words: Python parameter names (``tone_hz``), file names.
+    parameters : tuple of str
+        The Python parameter names the message speaks of, so that the command line can say the
+        same in its own words (``tone_hz`` becomes ``--tone``).
+    """
+
+    def __init__(self, message: str = "", *, parameters: tuple[str, ...] = ()) -> None:
+        super().__init__(message)
+        self.parameters = tuple(parameters)
 
 
 class InputError(IqsiftError, ValueError):
@@ -32,7 +45,10 @@ class CaptureError(InputError):
 
 
 class ParameterError(InputError):
-    """A parameter (frequency, bandwidth, mode, plan entry ...) is invalid."""
+    """A parameter (frequency, bandwidth, mode, plan entry ...) is invalid.
+
+    The message starts with the parameter's Python name (``"tone_hz: got 50000.0; ..."``).
+    """
 
 
 class OutputExistsError(IqsiftError, FileExistsError):

@@ -50,14 +50,15 @@ def check_output_path(path: str | os.PathLike, force: bool = False, protect: tup
     if protect and path.exists():
         target = path.resolve()
         if any(target == Path(p).resolve() for p in protect):
-            raise ParameterError(f"{path}: is an input of this command; refusing to overwrite it, even with --force")
+            raise ParameterError(f"{path}: is an input of this command; refusing to overwrite it, even with force",
+                                 parameters=("force",))
     if path.is_dir():
         raise ParameterError(f"{path}: is a directory; give a file name for the output")
     parent = path.parent if str(path.parent) else Path(".")
     if not parent.is_dir():
         raise ParameterError(f"{path}: the folder {parent} does not exist")
     if path.exists() and not force:
-        raise OutputExistsError(f"{path}: exists; pass --force to overwrite it")
+        raise OutputExistsError(f"{path}: exists; pass force to overwrite it", parameters=("force",))
     return path
 
 
@@ -111,7 +112,8 @@ class OutputSet:
         for final, temp in self._pending:
             if final.exists() and not self.force:
                 self.abort()
-                raise OutputExistsError(f"{final}: appeared while writing; pass --force to overwrite it")
+                raise OutputExistsError(f"{final}: appeared while writing; pass force to overwrite it",
+                                        parameters=("force",))
             os.chmod(temp, 0o666 & ~_UMASK)  # mkstemp creates 0600; outputs get the usual permissions
             os.replace(temp, final)
             done.append(final)

@@ -281,7 +281,7 @@ class Capture:
             )
             raise CaptureError(
                 f"{self.path}: the selected samples span capture segments with different centre frequencies "
-                f"({listing}); pick one segment with --start/--duration"
+                f"({listing}); pick one segment with start and duration", parameters=("start", "duration")
             )
         return freqs.pop() if freqs else None
 
@@ -350,7 +350,7 @@ class Capture:
                         first_bad = position + int(np.argmin(finite))
                         raise CaptureError(
                             f"{self.path}: sample {first_bad} is NaN or infinite; "
-                            "pass --allow-nonfinite to replace such samples with 0"
+                            "pass allow_nonfinite to replace such samples with 0", parameters=("allow_nonfinite",)
                         )
                     block = np.where(finite, block, np.complex64(0))
             yield block

@@ -181,7 +181,8 @@ def parse_datatype(name: str, source: str = "datatype") -> DataType:
 
 
 def _datatype_error(source: str) -> type:
-    return ParameterError if source.startswith("--") else CaptureError
+    # a parameter name (``format``) means the caller gave the value; anything else names a file
+    return ParameterError if source.isidentifier() else CaptureError
 
 
 def _all_names() -> tuple[str, ...]:

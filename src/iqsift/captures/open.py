@@ -71,12 +71,13 @@ def open_capture(
         For invalid options.
     """
     path = Path(path)
-    rate_hz = None if rate is None else parse_positive_hz(rate, "--rate")
-    center_hz = None if center is None else parse_frequency(center, "--center")
+    rate_hz = None if rate is None else parse_positive_hz(rate, "rate")
+    center_hz = None if center is None else parse_frequency(center, "center")
     kind = capture_kind(path)
     if kind == "sigmf":
         if format is not None:
-            raise ParameterError(f"{path}: --format applies to raw files; a SigMF file states its own datatype")
+            raise ParameterError(f"{path}: format applies to raw files only; a SigMF file states its own datatype",
+                                 parameters=("format",))
         # a missing file of the pair is reported by the reader, naming the missing one
         if path.is_dir():
             raise CaptureError(f"{path}: is a directory, not a capture file")
@@ -87,11 +88,13 @@ def open_capture(
         raise CaptureError(f"{path}: is a directory, not a capture file")
     if kind == "sigmf-archive":
         if format is not None:
-            raise ParameterError(f"{path}: --format applies to raw files; a SigMF archive states its own datatype")
+            raise ParameterError(f"{path}: format applies to raw files only; a SigMF archive states its own datatype",
+                                 parameters=("format",))
         return read_sigmf_archive(path, rate=rate_hz, center=center_hz, strict=strict)
     if kind == "audio":
         if format is not None:
-            raise ParameterError(f"{path}: --format applies to raw files; WAV/FLAC files state their own format")
+            raise ParameterError(f"{path}: format applies to raw files only; WAV/FLAC files state their own sample type",
+                                 parameters=("format",))
         if path.stat().st_size == 0:
             raise CaptureError(f"{path}: the file is empty (0 samples)")
         return read_audio_capture(path, rate=rate_hz, center=center_hz)

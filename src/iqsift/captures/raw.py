@@ -42,11 +42,11 @@ def read_raw(
     path = Path(path)
     if format is None:
         raise ParameterError(
-            f"{path}: not a SigMF, WAV or FLAC file; for a raw capture give --format (e.g. cf32_le, ci16_le, cu8)"
+            f"{path}: not a SigMF, WAV or FLAC file; for a raw capture give format (e.g. cf32_le, ci16_le, cu8)", parameters=("format",)
         )
-    datatype = parse_datatype(format, "--format")
+    datatype = parse_datatype(format, "format")
     if rate is None:
-        raise ParameterError(f"{path}: a raw capture needs --rate (samples/s)")
+        raise ParameterError(f"{path}: a raw capture needs rate (samples/s)", parameters=("rate",))
     size = path.stat().st_size
     if size == 0:
         raise CaptureError(f"{path}: the file is empty (0 samples)")

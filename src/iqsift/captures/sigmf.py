@@ -103,11 +103,11 @@ def _parse_meta(
         )
     if rate is None:
         if "core:sample_rate" not in glob:
-            raise CaptureError(f"{where}: global core:sample_rate is missing; give the rate with --rate")
+            raise CaptureError(f"{where}: global core:sample_rate is missing; pass it as rate", parameters=("rate",))
         try:
             rate = check_sample_rate(glob["core:sample_rate"], where)
         except CaptureError as exc:
-            raise CaptureError(f"{exc}; give the rate with --rate") from None
+            raise CaptureError(f"{exc}; pass the sample rate as rate", parameters=("rate",)) from None
     elif "core:sample_rate" in glob and glob["core:sample_rate"] != rate:
         warnings.warn(
             f"{where}: --rate {rate:g} overrides core:sample_rate {glob['core:sample_rate']!r}", IqsiftWarning

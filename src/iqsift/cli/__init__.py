@@ -26,6 +26,7 @@ from . import measure_cmd as _measure  # noqa: F401
 from . import survey_cmd as _survey  # noqa: F401
 from . import synth_cmd as _synth  # noqa: F401
 from .app import app
+from .options import in_flag_words
 
 __all__ = ["app", "main"]
 
@@ -51,7 +52,7 @@ def main(argv: list[str] | None = None) -> int:
         sys.stderr.write(f"iqsift: error: {exc.format_message()} (see iqsift --help)\n")
         return 2
     except IqsiftError as exc:
-        sys.stderr.write(f"iqsift: error: {exc}\n")
+        sys.stderr.write(f"iqsift: error: {in_flag_words(str(exc), exc.parameters)}\n")
         return 2
     except OSError as exc:
         where = f"{exc.filename}: " if exc.filename else ""

@@ -1,8 +1,6 @@
-"""The typer application object and the options every command shares."""
+"""The typer application object."""
 
 from __future__ import annotations
-
-from typing import Optional
 
 import typer
 
@@ -18,19 +16,6 @@ app = typer.Typer(
     rich_markup_mode=None,
     context_settings={"help_option_names": ["-h", "--help"]},
 )
-
-# Options shared by every command that opens a capture.
-FormatOption = typer.Option(
-    None, "--format", help="Datatype of a raw capture (SigMF name: cf32_le, ci16_le, cu8 ...)."
-)
-RateOption = typer.Option(None, "--rate", help="Sample rate in samples/s (SI suffix allowed: 2.4M); required for raw files.")
-CenterOption = typer.Option(None, "--center", help="Centre frequency of the capture in Hz (e.g. 127.5M).")
-StrictOption = typer.Option(False, "--strict", help="Refuse a data file that is not a whole number of samples.")
-JsonOption = typer.Option(False, "--json", help="Print a machine-readable JSON result on stdout.")
-QuietOption = typer.Option(False, "--quiet", "-q", help="No progress bar.")
-ForceOption = typer.Option(False, "--force", help="Overwrite existing output files.")
-
-OptStr = Optional[str]
 
 
 def _version(value: bool) -> None:

@@ -1,41 +1,19 @@
-"""Helpers shared by the command modules: JSON output, progress bar, capture opening."""
+"""Helpers shared by the command modules: JSON output and the progress bar."""
 
 from __future__ import annotations
 
-import json
-import math
 import sys
 import time
-from typing import Any, Iterable, Iterator
+from typing import Any, Callable
 
-import numpy as np
+from ..jsonable import dumps
 
-__all__ = ["emit_json", "to_jsonable", "Progress", "progress_blocks"]
-
-
-def to_jsonable(obj: Any) -> Any:
-    """Convert numpy scalars/arrays, paths and non-finite floats (→ null) for JSON."""
-    if isinstance(obj, dict):
-        return {str(k): to_jsonable(v) for k, v in obj.items()}
-    if isinstance(obj, (list, tuple)):
-        return [to_jsonable(v) for v in obj]
-    if isinstance(obj, np.ndarray):
-        return to_jsonable(obj.tolist())
-    if isinstance(obj, (np.floating, float)):
-        value = float(obj)
-        return value if math.isfinite(value) else None
-    if isinstance(obj, (np.integer,)):
-        return int(obj)
-    if isinstance(obj, (np.bool_,)):
-        return bool(obj)
-    if hasattr(obj, "__fspath__"):
-        return str(obj)
-    return obj
+__all__ = ["emit_json", "Progress", "ProgressBar"]
 
 
 def emit_json(obj: Any) -> None:
     """Print ``obj`` as indented JSON on stdout."""
-    sys.stdout.write(json.dumps(to_jsonable(obj), indent=2, allow_nan=False) + "\n")
+    sys.stdout.write(dumps(obj))
 
 
 class Progress:
@@ -86,12 +64,25 @@ class Progress:
             sys.stderr.flush()
 
 
-def progress_blocks(blocks: Iterable[np.ndarray], total: int, label: str, quiet: bool) -> Iterator[np.ndarray]:
-    """Pass blocks through while advancing a :class:`Progress` bar by their lengths."""
-    bar = Progress(total, label, quiet)
-    try:
-        for block in blocks:
-            yield block
-            bar.advance(block.shape[0])
-    finally:
-        bar.close()
+class ProgressBar:
+    """A job's ``progress`` callback drawing a :class:`Progress` bar, made when the job states its total.
+
+    Use as a context manager around the job call; the bar's line is finished on exit.
+    """
+
+    def __init__(self, label: str, quiet: bool) -> None:
+        self.label = label
+        self.quiet = quiet
+        self._bar: Progress | None = None
+
+    def __call__(self, samples: int, total: int) -> None:
+        if self._bar is None:
+            self._bar = Progress(total, self.label, self.quiet)
+        self._bar.advance(samples)
+
+    def __enter__(self) -> Callable[[int, int], None]:
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        if self._bar is not None:
+            self._bar.close()

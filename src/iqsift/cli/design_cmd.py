@@ -2,30 +2,28 @@
 
 from __future__ import annotations
 
-from typing import Optional
-
 import typer
 
 from ..channel import make_channel
 from ..dsp.design import format_design
-from ..receiver import design_channel
+from ..jobs import design_report
 from ..units import parse_positive_hz
-from .app import JsonOption, app
+from .app import app
 from .common import emit_json
-from .demod import AudioRateOption, BandwidthOption, EmissionOption, EngineOption, ModeOption
+from .options import AudioRateOption, BandwidthOption, EmissionOption, EngineOption, JsonOption, ModeOption, OptStr
 
 
 @app.command("design")
 def design_command(
     rate: str = typer.Option(..., "--rate", help="Input sample rate in samples/s (e.g. 2.4M)."),
-    bandwidth: Optional[str] = BandwidthOption,
-    emission: Optional[str] = EmissionOption,
-    mode: Optional[str] = ModeOption,
+    bandwidth: OptStr = BandwidthOption,
+    emission: OptStr = EmissionOption,
+    mode: OptStr = ModeOption,
     audio_rate: str = AudioRateOption,
     offset: str = typer.Option("0", "--offset", help="Carrier offset from the capture centre in Hz."),
     ripple: float = typer.Option(0.1, "--ripple", help="Passband ripple, dB peak to peak."),
     atten: float = typer.Option(80.0, "--atten", help="Stopband attenuation, dB."),
-    transition: Optional[str] = typer.Option(None, "--transition", help="Channel filter transition width in Hz."),
+    transition: OptStr = typer.Option(None, "--transition", help="Channel filter transition width in Hz."),
     engine: str = EngineOption,
     real: bool = typer.Option(False, "--real", help="Design for a real-valued (real IF) input."),
     json_out: bool = JsonOption,
@@ -34,8 +32,7 @@ def design_command(
     fs = parse_positive_hz(rate, "--rate")
     channel = make_channel(offset=offset, bandwidth=bandwidth, emission=emission, mode=mode,
                            audio_rate=audio_rate, transition=transition)
-    design = design_channel(fs, channel, real_input=real, engine=engine, ripple_db=ripple, atten_db=atten)
-    result = {"channel": channel.as_dict(None), "design": design.as_dict()}
+    result = design_report(fs, channel, real_input=real, engine=engine, ripple_db=ripple, atten_db=atten).to_dict()
     if json_out:
         emit_json(result)
         return

@@ -2,49 +2,40 @@
 
 from __future__ import annotations
 
-from typing import Any, Optional
+from typing import Any
 
 import typer
 
-from ..captures import StatsAccumulator, open_capture
+from ..jobs import info_file
 from ..units import format_hz
-from .app import CenterOption, FormatOption, JsonOption, QuietOption, RateOption, StrictOption, app
-from .common import emit_json, progress_blocks
-
-
-def capture_summary(capture) -> dict[str, Any]:
-    """The metadata part of ``info`` (stable JSON keys)."""
-    return {
-        "path": str(capture.path),
-        "format": capture.format,
-        "datatype": capture.datatype,
-        "is_complex": capture.is_complex,
-        "sample_rate_hz": capture.sample_rate_hz,
-        "center_hz": capture.center_hz,
-        "samples": capture.samples,
-        "duration_s": capture.duration_s,
-        "segments": [s.as_dict() for s in capture.segments],
-        "annotations": [a.as_dict() for a in capture.annotations],
-    }
+from .app import app
+from .common import ProgressBar, emit_json
+from .options import (
+    CaptureArgument,
+    CenterOption,
+    FormatOption,
+    JsonOption,
+    OptStr,
+    QuietOption,
+    RateOption,
+    StrictOption,
+)
 
 
 @app.command()
 def info(
-    capture_path: str = typer.Argument(..., metavar="CAPTURE", help="Capture file (SigMF, WAV/FLAC, or raw)."),
+    capture_path: str = CaptureArgument,
     json_out: bool = JsonOption,
-    format: Optional[str] = FormatOption,
-    rate: Optional[str] = RateOption,
-    center: Optional[str] = CenterOption,
+    format: OptStr = FormatOption,
+    rate: OptStr = RateOption,
+    center: OptStr = CenterOption,
     strict: bool = StrictOption,
     quiet: bool = QuietOption,
 ) -> None:
     """Describe a capture and measure its levels, DC offset, clipping and IQ imbalance."""
-    with open_capture(capture_path, format=format, rate=rate, center=center, strict=strict) as capture:
-        acc = StatsAccumulator(capture.is_complex, capture.clip_high)
-        for block in progress_blocks(capture.blocks(nonfinite="keep"), capture.samples, "measuring", quiet):
-            acc.update(block)
-        result = capture_summary(capture)
-        result["stats"] = acc.result().as_dict()
+    with ProgressBar("measuring", quiet) as progress:
+        result = info_file(capture_path, format=format, rate=rate, center=center, strict=strict,
+                           progress=progress).to_dict()
     if json_out:
         emit_json(result)
     else:
@@ -62,7 +53,6 @@ def format_rate(rate: float) -> str:
 
 def _db(value: float | None, unit: str = "dBFS") -> str:
     return "-inf " + unit if value is None else f"{value:.2f} {unit}"
-
 
 def format_info(result: dict[str, Any]) -> str:
     """Plain-text rendering of an ``info`` result."""

@@ -2,73 +2,69 @@
 
 from __future__ import annotations
 
-from typing import Any, Optional
+from typing import Any
 
 import typer
 
-from ..captures import open_capture
 from ..channel import make_channel
-from ..errors import ParameterError
-from ..receiver import Receiver
+from ..jobs import measure_file
 from ..units import parse_positive_hz
-from .app import CenterOption, FormatOption, JsonOption, QuietOption, RateOption, StrictOption, app
-from .common import emit_json, progress_blocks
-from .demod import (
+from .app import app
+from .common import ProgressBar, emit_json
+from .options import (
     AudioRateOption,
     BandwidthOption,
+    CaptureArgument,
+    CenterOption,
     DurationOption,
     EmissionOption,
+    FormatOption,
     FreqOption,
+    JsonOption,
     ModeOption,
     NonfiniteOption,
     OffsetOption,
+    OptStr,
+    QuietOption,
+    RateOption,
     StartOption,
+    StrictOption,
 )
-from .info import capture_summary
 
 
 @app.command("measure")
 def measure_command(
-    capture_path: str = typer.Argument(..., metavar="CAPTURE", help="Capture file (SigMF, WAV/FLAC, or raw)."),
-    freq: Optional[str] = FreqOption,
-    offset: Optional[str] = OffsetOption,
-    bandwidth: Optional[str] = BandwidthOption,
-    emission: Optional[str] = EmissionOption,
-    mode: Optional[str] = ModeOption,
-    tone: Optional[str] = typer.Option(None, "--tone", help="Test-tone frequency in Hz for SNR/SINAD/THD."),
+    capture_path: str = CaptureArgument,
+    freq: OptStr = FreqOption,
+    offset: OptStr = OffsetOption,
+    bandwidth: OptStr = BandwidthOption,
+    emission: OptStr = EmissionOption,
+    mode: OptStr = ModeOption,
+    tone: OptStr = typer.Option(None, "--tone", help="Test-tone frequency in Hz for SNR/SINAD/THD."),
     weighting: str = typer.Option("none", "--weighting", help="Audio noise weighting: none, psophometric or a."),
     x_db: float = typer.Option(26.0, "--x-db", help="x of the x-dB bandwidth (ITU-R SM.328), dB."),
     threshold: float = typer.Option(10.0, "--threshold", help="Activity threshold above the noise floor, dB."),
     audio_rate: str = AudioRateOption,
-    start: Optional[str] = StartOption,
-    duration: Optional[str] = DurationOption,
+    start: OptStr = StartOption,
+    duration: OptStr = DurationOption,
     allow_nonfinite: bool = NonfiniteOption,
     quiet: bool = QuietOption,
     json_out: bool = JsonOption,
-    format: Optional[str] = FormatOption,
-    rate: Optional[str] = RateOption,
-    center: Optional[str] = CenterOption,
+    format: OptStr = FormatOption,
+    rate: OptStr = RateOption,
+    center: OptStr = CenterOption,
     strict: bool = StrictOption,
 ) -> None:
     """Measure carrier frequency error and level, modulation depth, SNR/SINAD/THD, bandwidths and activity."""
-    if weighting not in ("none", "psophometric", "a"):
-        raise ParameterError(f"--weighting: got {weighting!r}; use none, psophometric or a")
     tone_hz = None if tone is None else parse_positive_hz(tone, "--tone")
     channel = make_channel(freq=freq, offset=offset, bandwidth=bandwidth, emission=emission, mode=mode,
                            audio_rate=audio_rate, name="measured")
-    with open_capture(capture_path, format=format, rate=rate, center=center, strict=strict) as capture:
-        selection = capture.select(start, duration)
-        receiver = Receiver.for_capture(capture, channel, selection, agc=False).analyze(
-            tone_hz=tone_hz, weighting=weighting, x_db=x_db, activity={"threshold_db": threshold},
-            time_offset_s=selection.start / capture.sample_rate_hz)  # activity in capture time
-        blocks = capture.blocks(start=selection.start, count=selection.count,
-                                nonfinite="zero" if allow_nonfinite else "error")
-        for _ in receiver.stream(progress_blocks(blocks, selection.count, "measuring", quiet)):
-            pass
-        result = receiver.report()
-        result["capture"] = capture_summary(capture)
-        result["selection"] = {"start_s": selection.start / capture.sample_rate_hz,
-                               "duration_s": selection.count / capture.sample_rate_hz}
+    with ProgressBar("measuring", quiet) as progress:
+        result = measure_file(
+            capture_path, channel, tone_hz=tone_hz, weighting=weighting, x_db=x_db, threshold_db=threshold,
+            start=start, duration=duration, allow_nonfinite=allow_nonfinite, progress=progress,
+            format=format, rate=rate, center=center, strict=strict,
+        ).to_dict()
     if json_out:
         emit_json(result)
     else:

@@ -3,28 +3,30 @@
 from __future__ import annotations
 
 import math
-from typing import Any, Optional
+from typing import Any
 
 import typer
 
-from ..captures import OutputSet, input_files, open_capture
 from ..errors import ParameterError
-from ..rasters import parse_raster
-from ..survey import DEFAULT_THRESHOLD_DB, survey_capture, survey_plan_text
+from ..jobs import survey_file
+from ..survey import DEFAULT_THRESHOLD_DB
 from ..units import format_hz, parse_positive_hz
-from .app import (
+from .app import app
+from .common import ProgressBar, emit_json
+from .options import (
+    CaptureArgument,
     CenterOption,
+    DurationOption,
     ForceOption,
     FormatOption,
     JsonOption,
+    NonfiniteOption,
+    OptStr,
     QuietOption,
     RateOption,
+    StartOption,
     StrictOption,
-    app,
 )
-from .common import emit_json, progress_blocks
-from .demod import DurationOption, NonfiniteOption, StartOption
-from .info import capture_summary
 
 __all__ = ["survey", "format_survey", "parse_threshold"]
 
@@ -42,73 +44,50 @@ def parse_threshold(text: str) -> float:
 
 @app.command("survey")
 def survey(
-    capture_path: str = typer.Argument(..., metavar="CAPTURE", help="Capture file (SigMF, WAV/FLAC, or raw)."),
+    capture_path: str = CaptureArgument,
     threshold: str = typer.Option(
         str(DEFAULT_THRESHOLD_DB).rstrip("0").rstrip("."), "--threshold", "-t",
         help="Detection threshold in dB above the local noise floor (3 to 100).",
     ),
-    raster: Optional[str] = typer.Option(
+    raster: OptStr = typer.Option(
         None, "--raster", help="Snap carriers to a channel raster: 25k, 8.33k (aeronautical, with ICAO names), 9k, 10k."
     ),
-    plan_out: Optional[str] = typer.Option(
+    plan_out: OptStr = typer.Option(
         None, "--plan-out", help="Write the proposed channel plan (TOML, as 'extract --plan' reads it) to this file."
     ),
-    resolution: Optional[str] = typer.Option(
+    resolution: OptStr = typer.Option(
         None, "--resolution", help="Detection bin width in Hz (default about 60 Hz, coarser for short captures)."
     ),
-    start: Optional[str] = StartOption,
-    duration: Optional[str] = DurationOption,
+    start: OptStr = StartOption,
+    duration: OptStr = DurationOption,
     allow_nonfinite: bool = NonfiniteOption,
     force: bool = ForceOption,
     quiet: bool = QuietOption,
     json_out: bool = JsonOption,
-    format: Optional[str] = FormatOption,
-    rate: Optional[str] = RateOption,
-    center: Optional[str] = CenterOption,
+    format: OptStr = FormatOption,
+    rate: OptStr = RateOption,
+    center: OptStr = CenterOption,
     strict: bool = StrictOption,
 ) -> None:
     """Find the emissions in a capture: frequency, level, bandwidth, class; optionally write a channel plan."""
     threshold_db = parse_threshold(threshold)
-    raster_obj = parse_raster(raster) if raster is not None else None
     resolution_hz = parse_positive_hz(resolution, "--resolution") if resolution is not None else None
-    with OutputSet(force=force, protect=input_files(capture_path)) as outputs:
-        plan_tmp = outputs.reserve(plan_out) if plan_out else None  # checked before any work
-        with open_capture(capture_path, format=format, rate=rate, center=center, strict=strict) as capture:
-            selection = capture.select(start, duration)
-            if raster_obj is not None and capture.center_for(selection) is None:
-                raise ParameterError(
-                    f"--raster {raster}: {capture.path} has no centre frequency, so frequencies are offsets; "
-                    "give the centre with --center"
-                )
-            result = survey_capture(
-                capture,
-                threshold_db=threshold_db,
-                raster=raster_obj,
-                selection=selection,
-                resolution_hz=resolution_hz,
-                nonfinite="zero" if allow_nonfinite else "error",
-                wrap_blocks=lambda blocks, total: progress_blocks(blocks, total, "survey", quiet),
-            )
-            report = result.to_dict()
-            report["capture"] = capture_summary(capture)
-            report["selection"] = {
-                "start_s": selection.start / capture.sample_rate_hz,
-                "duration_s": selection.count / capture.sample_rate_hz,
-                "sample_start": selection.start,
-                "sample_count": selection.count,
-            }
-            report["plan"] = str(plan_out) if plan_out else None
-            if plan_tmp is not None and result.emissions:
-                plan_tmp.write_text(survey_plan_text(result, capture_name=capture.path.name), encoding="utf-8")
-        if json_out:
-            emit_json(report)
-        else:
-            typer.echo(format_survey(report))
-        if plan_tmp is not None and not result.emissions:
-            raise ParameterError(
-                f"--plan-out {plan_out}: no emissions found at {threshold_db:g} dB above the noise floor, "
-                "so there is no plan to write"
-            )
+    with ProgressBar("survey", quiet) as progress:
+        result = survey_file(
+            capture_path, threshold_db=threshold_db, raster=raster, plan_out=plan_out, resolution_hz=resolution_hz,
+            start=start, duration=duration, allow_nonfinite=allow_nonfinite, force=force, progress=progress,
+            format=format, rate=rate, center=center, strict=strict,
+        )
+    report = result.to_dict()
+    if json_out:
+        emit_json(report)
+    else:
+        typer.echo(format_survey(report))
+    if plan_out and result.plan is None:
+        raise ParameterError(
+            f"--plan-out {plan_out}: no emissions found at {threshold_db:g} dB above the noise floor, "
+            "so there is no plan to write"
+        )
 
 
 def _freq(value: float | None, has_centre: bool) -> str:

@@ -1,0 +1,47 @@
+"""One library call per command: each does exactly what its command does and returns a typed result.
+
+The command-line interface parses options, calls one of these and prints the result; a test bench
+calls them directly::
+
+    from iqsift import make_channel
+    from iqsift.jobs import demod_file, extract_file
+
+    result = demod_file("capture.sigmf-meta", make_channel(freq="124.1M", emission="6K00A3E"), "out.wav")
+    result.receiver["channel"]["level_dbfs"], result.to_dict()      # the JSON `iqsift demod --json` prints
+
+    report = extract_file("capture.sigmf-meta", "plan.toml", "out/")  # what `iqsift extract` writes
+
+A capture is given as a path (the job opens and closes it) or as an opened
+:class:`~iqsift.captures.Capture`. Every result's ``to_dict()`` carries ``schema`` (the name of its
+JSON Schema in ``iqsift/schemas/``) and ``iqsift_version``.
+"""
+
+from .common import CaptureSummary, SelectionSummary
+from .demod import DemodOutputs, DemodResult, demod_file
+from .design import DesignReport, design_report
+from .extract import ExtractResult, extract_file
+from .info import InfoResult, info_file
+from .measure import WEIGHTINGS, MeasureResult, measure_file
+from .survey import SurveyReport, survey_file
+from .synth import SynthReport, synth_file
+
+__all__ = [
+    "CaptureSummary",
+    "DemodOutputs",
+    "DemodResult",
+    "DesignReport",
+    "ExtractResult",
+    "InfoResult",
+    "MeasureResult",
+    "SelectionSummary",
+    "SurveyReport",
+    "SynthReport",
+    "WEIGHTINGS",
+    "demod_file",
+    "design_report",
+    "extract_file",
+    "info_file",
+    "measure_file",
+    "survey_file",
+    "synth_file",
+]

@@ -1,0 +1,211 @@
+"""What every job shares: the capture and selection parts of a result, opening a capture, provenance.
+
+A job takes a capture either as a path (it opens and closes it) or as an already opened
+:class:`~iqsift.captures.Capture` (the caller keeps it open). Results carry a ``schema`` key naming
+the JSON Schema they follow (``iqsift/schemas/<name>.json``) and the ``iqsift_version`` that made them.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import os
+from dataclasses import dataclass
+from typing import Any, Callable, Iterable, Iterator, Mapping, TypeAlias, Union
+
+import numpy as np
+
+from .. import __version__
+from ..captures import Capture, OutputSet, SampleRange, SigMFWriter, open_capture
+from ..errors import ParameterError
+from ..jsonable import to_jsonable
+
+__all__ = [
+    "CaptureArg",
+    "CaptureSummary",
+    "Progress",
+    "SelectionSummary",
+    "baseband_writer",
+    "check_plot_format",
+    "counted",
+    "nonfinite_policy",
+    "opened",
+    "stamped",
+]
+
+CaptureArg: TypeAlias = Union[str, "os.PathLike[str]", Capture]
+"""A capture as jobs accept it: a path, or an opened :class:`~iqsift.captures.Capture`."""
+
+Progress = Callable[[int, int], None]
+"""Called after each block with the samples just processed and the total the job will process."""
+
+PLOT_FORMATS = ("png", "svg")
+
+
+def stamped(schema: str, body: Mapping[str, Any]) -> dict[str, Any]:
+    """``body`` as JSON-ready data, headed by its ``schema`` name and the ``iqsift_version``."""
+    return {"schema": schema, "iqsift_version": __version__, **to_jsonable(dict(body))}
+
+
+@contextlib.contextmanager
+def opened(
+    capture: CaptureArg,
+    *,
+    format: str | None = None,
+    rate: str | float | None = None,
+    center: str | float | None = None,
+    strict: bool = False,
+) -> Iterator[Capture]:
+    """The capture, opened here (and closed on exit) when given as a path; as it is when already open.
+
+    Raises
+    ------
+    ParameterError
+        If reading options (``format``, ``rate``, ``center``) come with an already opened capture:
+        they belong to :func:`~iqsift.captures.open_capture`.
+    """
+    if isinstance(capture, Capture):
+        given = [name for name, value in (("format", format), ("rate", rate), ("center", center)) if value is not None]
+        if given:
+            raise ParameterError(f"{', '.join(given)}: only for a capture given by path; {capture.path} is already open")
+        yield capture
+        return
+    with open_capture(capture, format=format, rate=rate, center=center, strict=strict) as opened_capture:
+        yield opened_capture
+
+
+def check_plot_format(plot_format: str) -> str:
+    """``plot_format`` if it is one iqsift writes (png or svg)."""
+    if plot_format not in PLOT_FORMATS:
+        raise ParameterError(f"plot_format: got {plot_format!r}; use png or svg")
+    return plot_format
+
+
+def nonfinite_policy(allow_nonfinite: bool) -> str:
+    """How capture reading treats NaN/Inf samples: replaced by 0 when allowed, else refused."""
+    return "zero" if allow_nonfinite else "error"
+
+
+def counted(blocks: Iterable[np.ndarray], total: int, progress: Progress | None) -> Iterator[np.ndarray]:
+    """Pass blocks through, telling ``progress`` how many samples each held (of ``total``)."""
+    for block in blocks:
+        yield block
+        if progress is not None:
+            progress(block.shape[0], total)
+
+
+@dataclass(frozen=True)
+class CaptureSummary:
+    """What a capture holds, as every job reports it (no samples read).
+
+    Attributes
+    ----------
+    path : str
+        The file named (for SigMF, the ``.sigmf-meta`` file).
+    format, datatype : str
+        Container and stored sample format (SigMF datatype name).
+    is_complex : bool
+        IQ (True) or real IF (False).
+    sample_rate_hz : float
+        Sample rate (samples/s).
+    center_hz : float or None
+        Centre frequency (Hz) of the first segment; None when unknown.
+    samples : int
+        Length in samples.
+    duration_s : float
+        Length in seconds.
+    segments, annotations : tuple of dict
+        SigMF capture segments and annotations.
+    """
+
+    path: str
+    format: str
+    datatype: str
+    is_complex: bool
+    sample_rate_hz: float
+    center_hz: float | None
+    samples: int
+    duration_s: float
+    segments: tuple[Mapping[str, Any], ...]
+    annotations: tuple[Mapping[str, Any], ...]
+
+    @classmethod
+    def of(cls, capture: Capture) -> "CaptureSummary":
+        """The summary of an opened capture."""
+        return cls(
+            path=str(capture.path),
+            format=capture.format,
+            datatype=capture.datatype,
+            is_complex=capture.is_complex,
+            sample_rate_hz=capture.sample_rate_hz,
+            center_hz=capture.center_hz,
+            samples=capture.samples,
+            duration_s=capture.duration_s,
+            segments=tuple(s.as_dict() for s in capture.segments),
+            annotations=tuple(a.as_dict() for a in capture.annotations),
+        )
+
+    def to_dict(self) -> dict[str, Any]:
+        """Stable JSON keys."""
+        return {
+            "path": self.path,
+            "format": self.format,
+            "datatype": self.datatype,
+            "is_complex": self.is_complex,
+            "sample_rate_hz": self.sample_rate_hz,
+            "center_hz": self.center_hz,
+            "samples": self.samples,
+            "duration_s": self.duration_s,
+            "segments": [dict(s) for s in self.segments],
+            "annotations": [dict(a) for a in self.annotations],
+        }
+
+
+@dataclass(frozen=True)
+class SelectionSummary:
+    """The part of a capture a job processed: from ``start_s`` for ``duration_s`` (s), in samples too."""
+
+    start_s: float
+    duration_s: float
+    sample_start: int
+    sample_count: int
+
+    @classmethod
+    def of(cls, capture: Capture, selection: SampleRange) -> "SelectionSummary":
+        rate = capture.sample_rate_hz
+        return cls(selection.start / rate, selection.count / rate, selection.start, selection.count)
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"start_s": self.start_s, "duration_s": self.duration_s,
+                "sample_start": self.sample_start, "sample_count": self.sample_count}
+
+
+def baseband_writer(
+    path: str | os.PathLike[str],
+    *,
+    capture: Capture,
+    selection: SampleRange,
+    rate_hz: float,
+    center_hz: float | None,
+    channel: Mapping[str, Any],
+    design: Mapping[str, Any],
+    outputs: OutputSet,
+) -> SigMFWriter:
+    """A SigMF writer for one channel's baseband, with its provenance in the ``iqsift`` extension.
+
+    The metadata records the source capture and the selection read from it, the channel and its
+    designed chain, so the recording can be traced back and processed again.
+    """
+    return SigMFWriter(
+        path,
+        rate_hz,
+        center_hz=center_hz,
+        datatype="cf32_le",
+        description=f"iqsift channel baseband of {capture.path.name}",
+        extra={
+            "iqsift:source": {"path": str(capture.path), "sample_start": selection.start,
+                              "sample_count": selection.count},
+            "iqsift:channel": to_jsonable(channel),
+            "iqsift:design": to_jsonable(design),
+        },
+        outputs=outputs,
+    )

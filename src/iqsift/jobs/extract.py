@@ -1,0 +1,220 @@
+"""The ``extract`` job: every channel of a plan, in one pass, to audio files and one report."""
+
+from __future__ import annotations
+
+import os
+import time
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any, Mapping
+
+from ..captures import AudioWriter, Capture, OutputSet, SampleRange, SigMFWriter
+from ..errors import ParameterError
+from ..extract import Extractor, channels_from_plan
+from ..jsonable import dumps
+from ..plan import ChannelPlan, load_plan
+from .common import (
+    CaptureArg,
+    CaptureSummary,
+    Progress,
+    SelectionSummary,
+    baseband_writer,
+    check_plot_format,
+    counted,
+    nonfinite_policy,
+    opened,
+    stamped,
+)
+
+__all__ = ["ExtractResult", "extract_file"]
+
+
+@dataclass(frozen=True)
+class ExtractResult:
+    """A finished extraction.
+
+    Attributes
+    ----------
+    capture : CaptureSummary
+    plan : str
+        The plan file (or ``source`` of a plan given as an object).
+    selection : SelectionSummary
+    filter_bank : Mapping
+        ``fft_size``, ``hop`` and ``channels`` of the shared fast-convolution bank.
+    processing_s : float
+        Time spent streaming the capture through the bank and channels (s).
+    channels : tuple of Mapping
+        Each channel's report (as ``demod`` gives it) with its ``outputs``.
+    folder : str
+        The output folder; ``report.json`` in it holds :meth:`to_dict`.
+    elapsed_s : float
+        Wall-clock time of the whole job up to the report, plots included (s).
+    """
+
+    capture: CaptureSummary
+    plan: str
+    selection: SelectionSummary
+    filter_bank: Mapping[str, Any]
+    processing_s: float
+    channels: tuple[Mapping[str, Any], ...]
+    folder: str
+    elapsed_s: float
+
+    schema = "extract-v1"
+
+    @property
+    def report_path(self) -> str:
+        return str(Path(self.folder) / "report.json")
+
+    def to_dict(self) -> dict[str, Any]:
+        """The JSON ``iqsift extract --json`` prints and ``report.json`` holds."""
+        count = self.selection.sample_count
+        return stamped(self.schema, {
+            "capture": self.capture.to_dict(),
+            "plan": self.plan,
+            "selection": self.selection.to_dict(),
+            "filter_bank": dict(self.filter_bank),
+            "processing_s": self.processing_s,
+            "input_throughput_msps": count / self.processing_s / 1e6 if self.processing_s > 0 else None,
+            "channels": [dict(c) for c in self.channels],
+            "outputs": {"folder": self.folder, "report": self.report_path},
+            "elapsed_s": self.elapsed_s,
+        })
+
+
+def extract_file(
+    capture: CaptureArg,
+    plan: str | os.PathLike[str] | ChannelPlan,
+    out_dir: str | os.PathLike[str],
+    *,
+    spectra: bool = False,
+    plot_format: str = "png",
+    baseband: bool = False,
+    start: str | float | None = None,
+    duration: str | float | None = None,
+    allow_nonfinite: bool = False,
+    force: bool = False,
+    progress: Progress | None = None,
+    format: str | None = None,
+    rate: str | float | None = None,
+    center: str | float | None = None,
+    strict: bool = False,
+) -> ExtractResult:
+    """Extract every channel of a plan in one pass: ``<name>.wav`` per channel and ``report.json``.
+
+    The folder is created if needed (its parent must exist) and removed again if the job fails
+    before writing anything into it. Outputs are checked before any work and committed together.
+
+    Parameters
+    ----------
+    capture : path or Capture
+        The capture.
+    plan : path or ChannelPlan
+        The channel plan (TOML file, or one read with :func:`iqsift.plan.load_plan`).
+    out_dir : path
+        Output folder.
+    spectra : bool
+        Also write stage spectra plots per channel under ``out_dir/spectra/<name>/``.
+    plot_format : {"png", "svg"}
+        Plot file format.
+    baseband : bool
+        Also write each channel's baseband as SigMF (``<name>.sigmf-meta``/``-data``).
+    start, duration, allow_nonfinite, force, progress, format, rate, center, strict
+        As for :func:`demod_file`.
+    """
+    check_plot_format(plot_format)
+    started = time.perf_counter()
+    plan_obj = plan if isinstance(plan, ChannelPlan) else load_plan(plan)
+    plan_file = None if isinstance(plan, ChannelPlan) else Path(plan)
+    folder = Path(out_dir)
+    if folder.exists() and not folder.is_dir():
+        raise ParameterError(f"out_dir {folder}: exists and is not a folder", parameters=("out_dir",))
+    with opened(capture, format=format, rate=rate, center=center, strict=strict) as cap:
+        selection = cap.select(start, duration)
+        centre = cap.center_for(selection)
+        extractor = Extractor(cap.sample_rate_hz, channels_from_plan(plan_obj, centre), center_hz=centre,
+                              real_input=not cap.is_complex, spectra=spectra,
+                              time_offset_s=selection.start / cap.sample_rate_hz)
+        parent = folder.parent if str(folder.parent) else Path(".")
+        if not parent.is_dir():
+            raise ParameterError(f"out_dir {folder}: the folder {parent} does not exist", parameters=("out_dir",))
+        if spectra:
+            from ..stage_plots import check_stage_plot_folder
+
+            for rx in extractor.receivers:  # before any work: no plot overwritten without force
+                if (folder / "spectra" / _stem(rx)).is_dir():
+                    check_stage_plot_folder(folder / "spectra" / _stem(rx), plot_format, force)
+        created = not folder.exists()
+        folder.mkdir(exist_ok=True)
+        try:
+            protect = (*cap.files, *(() if plan_file is None else (plan_file,)))
+            with OutputSet(force=force, protect=protect) as outputs:
+                return _run(extractor, cap, selection, folder, outputs, started,
+                            plan=str(plan_file) if plan_file is not None else plan_obj.source,
+                            baseband=baseband, spectra=spectra, plot_format=plot_format,
+                            nonfinite=nonfinite_policy(allow_nonfinite), progress=progress)
+        except BaseException:
+            if created and not any(folder.iterdir()):
+                folder.rmdir()
+            raise
+
+
+def _stem(rx: Any) -> str:
+    """The file stem of a receiver's outputs (the plan's sanitised name)."""
+    return str(rx.channel.extra.get("file_stem") or rx.channel.name)
+
+
+def _run(extractor: Extractor, cap: Capture, selection: SampleRange, folder: Path, outputs: OutputSet,
+         started: float, *, plan: str, baseband: bool, spectra: bool, plot_format: str, nonfinite: str,
+         progress: Progress | None) -> ExtractResult:
+    writers: list[AudioWriter] = []
+    bb_writers: list[SigMFWriter] = []
+    files: list[dict[str, Any]] = []
+    centre = extractor.center_hz
+    for rx in extractor.receivers:
+        audio_path = folder / f"{_stem(rx)}.wav"
+        writers.append(AudioWriter(audio_path, rx.audio_rate_hz, outputs=outputs))
+        entry: dict[str, Any] = {"audio": str(audio_path)}
+        if baseband:
+            bb_path = folder / f"{_stem(rx)}.sigmf-meta"
+            writer = baseband_writer(
+                bb_path, capture=cap, selection=selection, rate_hz=rx.design.channel_rate_hz,
+                center_hz=rx.channel.absolute_frequency(centre), channel=rx.channel.as_dict(centre),
+                design=rx.design.as_dict(centre), outputs=outputs)
+            rx.back.on_baseband = writer.write
+            bb_writers.append(writer)
+            entry["baseband"] = str(bb_path)
+        files.append(entry)
+    report_tmp = outputs.reserve(folder / "report.json")
+    blocks = cap.blocks(start=selection.start, count=selection.count, nonfinite=nonfinite)
+    t0 = time.perf_counter()
+    for audio_list in extractor.stream(counted(blocks, selection.count, progress)):
+        for writer, audio in zip(writers, audio_list):
+            if audio.size:
+                writer.write(audio)
+    processing_s = time.perf_counter() - t0
+    for closing in (*writers, *bb_writers):
+        closing.close()
+    channels = []
+    for rx, entry, audio_writer in zip(extractor.receivers, files, writers):
+        report = rx.report()
+        entry["audio_clipped_samples"] = audio_writer.clipped_samples
+        if spectra:
+            from ..stage_plots import write_stage_plots
+
+            entry["spectra"] = [str(p) for p in write_stage_plots(
+                rx, folder / "spectra" / _stem(rx), capture_name=cap.path.name, fmt=plot_format, outputs=outputs)]
+        report["outputs"] = entry
+        channels.append(report)
+    result = ExtractResult(
+        capture=CaptureSummary.of(cap),
+        plan=plan,
+        selection=SelectionSummary.of(cap, selection),
+        filter_bank={"fft_size": extractor.bank.fft_size, "hop": extractor.bank.hop, "channels": len(channels)},
+        processing_s=processing_s,
+        channels=tuple(channels),
+        folder=str(folder),
+        elapsed_s=time.perf_counter() - started,
+    )
+    report_tmp.write_text(dumps(result.to_dict()))
+    return result
