@@ -7,12 +7,12 @@ from typing import Optional
 import typer
 
 from ..channel import make_channel
-from ..dsp.design import format_design
 from ..receiver import design_channel
 from ..units import parse_positive_hz
 from .app import JsonOption, app
 from .common import emit_json
 from .demod import AudioRateOption, BandwidthOption, EmissionOption, EngineOption, ModeOption
+from .design_table import format_design
 
 
 @app.command("design")
