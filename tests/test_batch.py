@@ -13,7 +13,7 @@ from hypothesis import strategies as st
 
 from iqsift.dsp.batch import BatchFir
 from iqsift.dsp.post import CarrierNormaliser
-from iqsift.dsp.stages import _UpFirDn
+from iqsift.dsp.stages import UpFirDn
 
 RATE = 9600.0
 
@@ -40,7 +40,7 @@ def test_rows_equal_single_channels(cuts):
     np.testing.assert_allclose(np.concatenate([single.process(b) for b in blocks(x[1], cuts)]), got[1], atol=1e-6)
 
     res_taps = 5 * np.hanning(41) / np.hanning(41).sum()
-    core = _UpFirDn(res_taps, 5, 3)
+    core = UpFirDn(res_taps, 5, 3)
     got = np.concatenate([core.process(b) for b in blocks(x, cuts)], axis=1)
     want = ss.upfirdn(res_taps, x, 5, 3, axis=1)[:, : got.shape[1]]  # scipy.signal reference
     np.testing.assert_allclose(got, want, atol=1e-5)

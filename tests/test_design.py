@@ -1,4 +1,4 @@
-"""Tests for iqsift.dsp.design: filter lengths, low-pass designs, decimation plans, resamplers.
+"""Tests for iqsift.dsp.filters and the design table: filter lengths, low-pass designs, plans, resamplers.
 
 Every check measures the designs independently of the library's own
 measurement, with scipy.signal (freqz, firwin, kaiserord, upfirdn,
@@ -17,13 +17,13 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy import signal
 
-from iqsift.dsp.design import (
+from iqsift.cli.design_table import format_design
+from iqsift.dsp.filters import (
     DecimationPlan,
     LowpassDesign,
     choose_decimation,
     design_lowpass,
     design_resampler,
-    format_design,
     harris_length,
     kaiser_beta,
     kaiser_length,

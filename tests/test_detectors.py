@@ -35,11 +35,10 @@ from iqsift.dsp.detectors import (
     DsbDetector,
     EnvelopeDetector,
     SidebandDetector,
-    carrier_lowpass_taps,
     detect,
     make_detector,
-    sideband_bandpass_taps,
 )
+from iqsift.dsp.filters import carrier_lowpass_taps, sideband_bandpass_taps
 from iqsift.errors import ParameterError
 
 FS = 16000.0

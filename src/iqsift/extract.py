@@ -21,7 +21,7 @@ from .channel import Channel
 from .dsp.batch import BatchFir
 from .dsp.channelizer import FastConvChannelizer
 from .dsp.post import CarrierNormaliser
-from .dsp.stages import Mixer, _UpFirDn
+from .dsp.stages import Mixer, UpFirDn
 from .errors import ParameterError
 from .plan import ChannelPlan, PlannedChannel
 from .receiver import Receiver, bank_channel, input_tap, valid_mask
@@ -72,7 +72,7 @@ class _AmBatch:
         self.normaliser = normaliser.for_rows(rows)
         self.fir = merged.stage.for_rows(rows)
         r = lead.resampler
-        self.resampler = _UpFirDn(r.taps.astype(np.float32), r.up, r.down)
+        self.resampler = UpFirDn(r.taps.astype(np.float32), r.up, r.down)
         self.gain = np.float32(lead.audio_gain)
         self.detector_out = 0
         self.real_total: int | None = None

@@ -16,7 +16,7 @@ Two front ends implement the same contract:
 * ``"polyphase"``: the textbook time-domain chain — a frequency-translating
   polyphase FIR decimator followed by further FIR decimation stages
   (Crochiere & Rabiner 1983; harris 2004), planned by
-  :func:`iqsift.dsp.design.plan_decimation`. Slower, used as a cross-check.
+  :func:`iqsift.dsp.filters.plan_decimation`. Slower, used as a cross-check.
 
 The receiver compensates its own delay: audio sample ``k`` belongs to capture
 time ``start + k / audio_rate``, and ``n`` input samples give
@@ -42,10 +42,10 @@ from .dsp.channelizer import (
     power_of_two_decimation,
     smooth_numbers,
 )
-from .dsp.design import LowpassDesign, design_lowpass, design_resampler, filter_summary, plan_decimation
+from .dsp.filters import LowpassDesign, design_lowpass, design_resampler, filter_summary, plan_decimation
 from .dsp.detectors import make_detector
-from .dsp.batch import BatchFir
-from .dsp.post import CarrierNormaliser, DelayTrim, FractionalDelay, Squelch, _long_fft
+from .dsp.batch import BatchFir, long_fft_size
+from .dsp.post import CarrierNormaliser, DelayTrim, FractionalDelay, Squelch
 from .dsp.stages import AGC, AudioBandpass, FirDecimator, Mixer, RationalResampler
 from .modes import AM_MODES
 from .errors import IqsiftWarning, ParameterError
@@ -531,7 +531,7 @@ class ChannelBackEnd:
             # one linear-phase FIR for both: the band-pass convolved with the fractional delay
             band = self.post.pop()
             joint = np.convolve(band.taps, fractional.taps)
-            merged = BatchFir(joint, 1, _long_fft(joint.size))
+            merged = BatchFir(joint, 1, long_fft_size(joint.size))
             self.post.append(_Delayed(merged, band.delay + fractional.delay))
         else:
             self.post.append(fractional)

@@ -5,11 +5,11 @@ from __future__ import annotations
 import typer
 
 from ..channel import make_channel
-from ..dsp.design import format_design
 from ..jobs import design_report
 from ..units import parse_positive_hz
 from .app import app
 from .common import emit_json
+from .design_table import format_design
 from .options import AudioRateOption, BandwidthOption, EmissionOption, EngineOption, JsonOption, ModeOption, OptStr
 
 

@@ -12,10 +12,21 @@ import numpy as np
 import scipy.fft as sfft
 from numpy.lib.stride_tricks import sliding_window_view
 
-__all__ = ["BatchFir"]
+from .stages import Stage
+
+__all__ = ["BatchFir", "long_fft_size"]
 
 
-class BatchFir:
+def long_fft_size(num_taps: int) -> int:
+    """Overlap-save FFT size for a filter of ``num_taps`` taps fed long blocks.
+
+    ``next_fast_len(max(8192, 16 * num_taps))``: few transforms per block, so
+    little Python overhead per block (the hop is at least 15/16 of the size).
+    """
+    return int(sfft.next_fast_len(max(8192, 16 * num_taps)))
+
+
+class BatchFir(Stage):
     """Streaming real FIR filter by overlap-save in single precision, along the last axis.
 
     Equals ``scipy.signal.lfilter(taps, 1, x)`` per row (chunked or not) to float32 rounding; used for
@@ -30,20 +41,31 @@ class BatchFir:
         Rows (channels) per block; 1 for a single channel, which may then be fed 1-D blocks.
     fft_size : int
         Overlap-save transform length (> len(taps) − 1).
+    rate_hz : float
+        Sample rate (samples/s), reported by ``rate_in`` and ``rate_out``
+        (default 1.0: a normalised rate, for callers that only filter).
+
+    Notes
+    -----
+    A :class:`~iqsift.dsp.stages.Stage` whose blocks may also be 2-D (one
+    channel per row). ``delay`` is ``(len(taps) − 1)/2``, the group delay of
+    symmetric taps; the filter is causal and holds nothing (``flush`` is empty).
     """
 
-    def __init__(self, taps: np.ndarray, rows: int, fft_size: int) -> None:
+    def __init__(self, taps: np.ndarray, rows: int, fft_size: int, rate_hz: float = 1.0) -> None:
         self.taps = np.asarray(taps, dtype=np.float64)
         self.m = self.taps.size - 1
         self.nfft = int(fft_size)
         self.hop = self.nfft - self.m
         self.H = sfft.rfft(self.taps, self.nfft).astype(np.complex64)
         self.rows = int(rows)
+        self._rate_in = self._rate_out = float(rate_hz)
+        self._delay = self.m / 2.0
         self.reset()
 
     def for_rows(self, rows: int) -> "BatchFir":
-        """A fresh filter with the same taps for ``rows`` channels."""
-        return BatchFir(self.taps, rows, self.nfft)
+        """A fresh filter with the same taps (and rate) for ``rows`` channels."""
+        return BatchFir(self.taps, rows, self.nfft, self._rate_in)
 
     def reset(self) -> None:
         self.state = np.zeros((self.rows, self.m), np.float32)
@@ -67,7 +89,7 @@ class BatchFir:
         y = y.reshape(buf.shape[0], -1)[:, :n].astype(np.float32, copy=False)
         return y[0] if flat else y
 
-    @property
-    def delay(self) -> float:
-        """Group delay for symmetric taps (samples)."""
-        return self.m / 2.0
+    def flush(self) -> np.ndarray:
+        """Nothing is held: an empty float32 block of the stage's shape (and reset)."""
+        self.reset()
+        return np.zeros(0 if self.rows == 1 else (self.rows, 0), np.float32)

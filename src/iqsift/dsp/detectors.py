@@ -28,8 +28,9 @@ Modes (see :func:`make_detector`):
 
 Streaming convention (all detectors)
 ------------------------------------
-Every detector is a stage: ``process(block)`` returns the output that is ready,
-``flush()`` returns the rest, ``reset()`` starts a new stream; read-only
+Every detector is a stage (:class:`iqsift.dsp.stages.Stage`): ``process(block)``
+returns the output that is ready, ``flush()`` returns the rest, ``reset()``
+starts a new stream; read-only
 ``rate_in`` = ``rate_out`` = ``fs_ch`` and ``delay`` (an integer number of
 samples, as a float).  As for the stages of :mod:`iqsift.dsp.stages`, the
 output is causal and its total length equals the input length: ``out[n +
@@ -51,7 +52,6 @@ from __future__ import annotations
 
 import inspect
 import math
-from functools import lru_cache
 
 import numpy as np
 from scipy import fft as sfft
@@ -60,6 +60,8 @@ from scipy import signal
 from .. import checks
 from ..errors import ParameterError
 from ..modes import MODES
+from .filters import carrier_lowpass_taps, sideband_bandpass_taps
+from .stages import Stage
 
 __all__ = [
     "DETECTOR_MODES",
@@ -69,8 +71,6 @@ __all__ = [
     "DsbDetector",
     "make_detector",
     "detect",
-    "carrier_lowpass_taps",
-    "sideband_bandpass_taps",
 ]
 
 DETECTOR_MODES = MODES
@@ -79,14 +79,6 @@ _TWO_PI = 2.0 * math.pi
 
 
 # ----------------------------------------------------------------------------- validation
-def _finite_positive(name: str, value: float) -> float:
-    return checks.positive(name, value)
-
-
-def _finite(name: str, value: float) -> float:
-    return checks.finite(name, value)
-
-
 def _as_block(block) -> np.ndarray:
     x = np.asarray(block)
     if x.ndim != 1:
@@ -96,157 +88,18 @@ def _as_block(block) -> np.ndarray:
     return x.astype(np.complex128, copy=False)
 
 
-# ----------------------------------------------------------------------------- filter design
-def sideband_bandpass_taps(
-    rate_hz: float,
-    sideband: str = "usb",
-    low_hz: float = 300.0,
-    high_hz: float = 3000.0,
-    transition_hz: float | None = None,
-    atten_db: float = 60.0,
-) -> np.ndarray:
-    """One-sided complex band-pass selecting one sideband of a carrier at 0 Hz.
-
-    A Kaiser-window low-pass prototype ``h[n]`` (windowed ideal low-pass,
-    Kaiser 1974; length and β from :func:`scipy.signal.kaiserord`) is shifted to
-    the band centre ``f0 = ±(low_hz + high_hz)/2``: ``h_c[n] = e^{j 2π f0 (n - D)/fs}·h[n]``
-    ("one-sided complex band-pass = e^{jω0 n}·low-pass", Oppenheim & Schafer,
-    *Discrete-Time Signal Processing*, ch. 7), with the index counted from the
-    centre tap ``D = (L-1)/2`` so that the filter is a pure delay of ``D``
-    samples in its passband (no constant phase rotation).
-
-    Parameters
-    ----------
-    rate_hz : float
-        Channel sample rate in Hz.
-    sideband : {"usb", "lsb"}
-        ``usb`` passes ``[low_hz, high_hz]``, ``lsb`` passes ``[-high_hz, -low_hz]``.
-    low_hz, high_hz : float
-        Audio passband edges in Hz (0 <= low_hz < high_hz < rate_hz/2).
-    transition_hz : float, optional
-        Transition width in Hz.  Default ``2·low_hz`` (so the opposite sideband's
-        edge at ``-low_hz`` is already in the stopband), at least 200 Hz.
-    atten_db : float
-        Stopband attenuation in dB designed for (default 60 dB).
-
-    Returns
-    -------
-    numpy.ndarray
-        complex128 taps, odd length.
-    """
-    rate = _finite_positive("rate_hz", rate_hz)
-    side = str(sideband).lower()
-    if side not in ("usb", "lsb"):
-        raise ParameterError(f"sideband: got {sideband!r}; it must be 'usb' or 'lsb'")
-    lo = _finite("low_hz", low_hz)
-    hi = _finite("high_hz", high_hz)
-    if lo < 0.0 or hi <= lo or hi >= rate / 2.0:
-        raise ParameterError(
-            f"low_hz/high_hz: got {lo!r}/{hi!r} Hz; need 0 <= low_hz < high_hz < rate/2 = {rate / 2.0:g} Hz"
-        )
-    tw = max(2.0 * lo, 200.0) if transition_hz is None else _finite_positive("transition_hz", transition_hz)
-    atten = _finite_positive("atten_db", atten_db)
-    half = (hi - lo) / 2.0
-    if half + tw >= rate / 2.0:
-        raise ParameterError(
-            f"transition_hz: got {tw:g} Hz; half-bandwidth + transition must stay below rate/2 = {rate / 2.0:g} Hz"
-        )
-    numtaps, beta = signal.kaiserord(atten, tw / (rate / 2.0))
-    numtaps |= 1  # odd: integer delay
-    cutoff = half + tw / 2.0  # Kaiser design: passband edge = cutoff - tw/2
-    proto = signal.firwin(numtaps, cutoff, window=("kaiser", beta), fs=rate)
-    f0 = (lo + hi) / 2.0 * (1.0 if side == "usb" else -1.0)
-    n = np.arange(numtaps) - (numtaps - 1) // 2
-    return proto * np.exp(1j * _TWO_PI * f0 * n / rate)
-
-
-def _kaiser_window_peak_sidelobe(beta: float, probe: int = 256, nfft: int = 1 << 15) -> tuple[float, float]:
-    """(peak sidelobe in dB, first null in cycles/sample × length) of a Kaiser window."""
-    w = np.kaiser(probe, beta)
-    mag = np.abs(np.fft.rfft(w, nfft))
-    mag /= mag[0]
-    rising = np.nonzero(np.diff(mag) > 0.0)[0]
-    null = int(rising[0]) if rising.size else len(mag) - 1
-    side = float(np.max(mag[null:])) if null < len(mag) else 0.0
-    return 20.0 * math.log10(max(side, 1e-300)), null / nfft * probe
-
-
-@lru_cache(maxsize=32)
-def _kaiser_window_shape(atten_db: float) -> tuple[float, float]:
-    """Smallest Kaiser β (bisection) whose window sidelobes are all <= -atten_db; and its null factor."""
-    lo, hi = 0.5, 40.0
-    for _ in range(40):
-        mid = 0.5 * (lo + hi)
-        if _kaiser_window_peak_sidelobe(mid)[0] <= -atten_db:
-            hi = mid
-        else:
-            lo = mid
-    return hi, _kaiser_window_peak_sidelobe(hi)[1]
-
-
-def carrier_lowpass_taps(rate_hz: float, stop_hz: float = 120.0, atten_db: float = 70.0) -> np.ndarray:
-    """Narrow non-negative linear-phase low-pass used to extract the carrier phasor.
-
-    The taps are a Kaiser window used as the impulse response (normalised to
-    unit DC gain).  Its β is the smallest whose sidelobes are all at least
-    ``atten_db`` below the main lobe, and its length puts the first null of the
-    main lobe at ``stop_hz``, so everything at or beyond ``stop_hz`` from the
-    carrier is attenuated by at least ``atten_db``.  (Kaiser window: J. F.
-    Kaiser 1974; Oppenheim & Schafer, ch. 7.)  Why a window rather than a
-    windowed sinc: all taps are >= 0, so the filtered squared signal of a DSB
-    carrier, ``LPF(p(t))·e^{j2θ}`` with ``p >= 0``, never changes sign (a sign
-    change would slip the recovered carrier by 180°), and an AM carrier phasor
-    is never rotated by a negative lobe.  Only the phase of the filtered
-    phasor is used, so passband flatness does not matter; the filter is
-    symmetric, so a residual frequency error ``δf`` (with ``H(δf) > 0``) gives no
-    phase error once the signal path is delayed by the same ``(L-1)/2`` samples.
-
-    Returns
-    -------
-    numpy.ndarray
-        float64 taps, odd length >= 3, symmetric, non-negative, sum 1.
-    """
-    rate = _finite_positive("rate_hz", rate_hz)
-    stop = _finite_positive("carrier_stop_hz", stop_hz)
-    atten = _finite_positive("carrier_atten_db", atten_db)
-    if stop >= rate / 4.0:
-        raise ParameterError(f"carrier_stop_hz: got {stop:g} Hz; it must be below rate/4 = {rate / 4.0:g} Hz")
-    if atten > 150.0:
-        raise ParameterError(f"carrier_atten_db: got {atten:g} dB; it must be at most 150 dB")
-    beta, null_factor = _kaiser_window_shape(round(atten, 6))
-    length = max(3, int(math.ceil(null_factor * rate / stop)) | 1)
-    # Verify from the actual taps (the null factor scales as 1/L only approximately).
-    for _ in range(64):
-        w = np.kaiser(length, beta)
-        nfft = 1 << max(16, int(math.ceil(math.log2(length * 16))))
-        mag = np.abs(np.fft.rfft(w, nfft)) / np.sum(w)
-        k_stop = int(math.ceil(stop / rate * nfft))
-        if 20.0 * math.log10(max(float(np.max(mag[k_stop:])), 1e-300)) <= -atten + 1e-9:
-            break
-        length += 2
-    return w / np.sum(w)
-
-
 # ----------------------------------------------------------------------------- base class
-class _Detector:
+class _Detector(Stage):
     """Common machinery: rates, delay, validation, auto-restart after flush."""
 
     mode = ""
+    _delay: int  # a whole number of samples: the signal path is delayed by a sample buffer
 
     def __init__(self, rate_hz: float) -> None:
-        self._rate = _finite_positive("rate_hz", rate_hz)
+        self._rate = checks.positive("rate_hz", rate_hz)
+        self._rate_in = self._rate_out = self._rate
         self._delay = 0
         self._finished = False
-
-    @property
-    def rate_in(self) -> float:
-        """Input (channel) sample rate in Hz."""
-        return self._rate
-
-    @property
-    def rate_out(self) -> float:
-        """Output sample rate in Hz (= ``rate_in``)."""
-        return self._rate
 
     @property
     def delay(self) -> float:
@@ -439,20 +292,20 @@ class _CarrierTracker(_Detector):
     ) -> None:
         super().__init__(rate_hz)
         fs = self._rate
-        self.max_offset_hz = _finite_positive("max_offset_hz", max_offset_hz)
+        self.max_offset_hz = checks.positive("max_offset_hz", max_offset_hz)
         if self.max_offset_hz >= fs / 4.0:
             raise ParameterError(
                 f"max_offset_hz: got {max_offset_hz!r} Hz; it must be below rate/4 = {fs / 4.0:g} Hz "
                 "(the squared signal's line at twice the offset must stay below rate/2)"
             )
-        self.frame_s = _finite_positive("frame_s", frame_s)
-        self.window_s = _finite_positive("window_s", window_s)
+        self.frame_s = checks.positive("frame_s", frame_s)
+        self.window_s = checks.positive("window_s", window_s)
         if self.window_s < self.frame_s:
             raise ParameterError(f"window_s: got {window_s!r} s; it must be at least frame_s = {frame_s!r} s")
-        self.min_peak_db = _finite("min_peak_db", min_peak_db)
-        self.accept_drop_db = _finite_positive("accept_drop_db", accept_drop_db)
-        self.release_db_per_s = _finite_positive("release_db_per_s", release_db_per_s)
-        self.initial_offset_hz = _finite("initial_offset_hz", initial_offset_hz)
+        self.min_peak_db = checks.finite("min_peak_db", min_peak_db)
+        self.accept_drop_db = checks.positive("accept_drop_db", accept_drop_db)
+        self.release_db_per_s = checks.positive("release_db_per_s", release_db_per_s)
+        self.initial_offset_hz = checks.finite("initial_offset_hz", initial_offset_hz)
         if abs(self.initial_offset_hz) > self.max_offset_hz:
             raise ParameterError(
                 f"initial_offset_hz: got {initial_offset_hz!r} Hz; it must lie within ±max_offset_hz = "
@@ -713,7 +566,7 @@ class DsbDetector(_CarrierTracker):
         release_db_per_s: float = 5.0,
         phase_hold_db: float = 15.0,
     ) -> None:
-        self.phase_hold_db = _finite_positive("phase_hold_db", phase_hold_db)
+        self.phase_hold_db = checks.positive("phase_hold_db", phase_hold_db)
         super().__init__(
             rate_hz,
             max_offset_hz=max_offset_hz,

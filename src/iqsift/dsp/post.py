@@ -1,4 +1,4 @@
-"""Audio post-processing after the detector: carrier normalisation and delay compensation.
+"""Audio post-processing after the detector: carrier normalisation, delay compensation, squelch.
 
 For AM with a carrier the detector output is ``A(t)·(1 + m·s(t))``. Dividing the
 AC part by the slowly varying carrier level ``A(t)`` gives ``m·s(t)``: audio whose
@@ -11,37 +11,14 @@ from __future__ import annotations
 
 import numpy as np
 
-from .design import design_lowpass
-from .batch import BatchFir
-from .stages import FirFilter
+from .batch import BatchFir, long_fft_size
+from .filters import design_lowpass, fractional_delay_taps
+from .stages import FirFilter, Stage
 
 __all__ = ["CarrierNormaliser", "DelayTrim", "FractionalDelay", "Squelch"]
 
 
-class _SameRate:
-    """Rates of a stage that keeps the sample rate (``rate_hz`` set by the subclass)."""
-
-    rate_hz: float
-
-    @property
-    def rate_in(self) -> float:
-        """Input rate (samples/s)."""
-        return self.rate_hz
-
-    @property
-    def rate_out(self) -> float:
-        """Output rate (samples/s)."""
-        return self.rate_hz
-
-
-def _long_fft(num_taps: int) -> int:
-    """Overlap-save FFT size for filters fed long blocks: few transforms per block (less Python overhead)."""
-    import scipy.fft
-
-    return int(scipy.fft.next_fast_len(max(8192, 16 * num_taps)))
-
-
-class CarrierNormaliser(_SameRate):
+class CarrierNormaliser(Stage):
     """``(d − c)/c`` with ``c`` the carrier level from a linear-phase low-pass of ``d``.
 
     Parameters
@@ -77,7 +54,9 @@ class CarrierNormaliser(_SameRate):
     (an integer: N is odd) so that ``d`` and ``c`` line up; that is
     :attr:`delay`. The stage holds nothing at the end (flush is empty).
     Blocks may be 1-D (one channel) or 2-D with one channel per row
-    (``rows``), all rows sharing the same validity mask.
+    (``rows``), all rows sharing the same validity mask. ``process(block)``
+    alone is the :class:`~iqsift.dsp.stages.Stage` protocol (every sample
+    valid); ``process(block, valid)`` adds the mask.
     """
 
     def __init__(
@@ -99,24 +78,21 @@ class CarrierNormaliser(_SameRate):
         self.design = design_lowpass(rate_hz, pass_hz, stop_hz, ripple_db=0.5, atten_db=atten_db, method="kaiser")
         self.rows = int(rows)
         self.rate_hz = float(rate_hz)
+        self._rate_in = self._rate_out = self.rate_hz
         self.floor = float(floor)
         self.normalise = bool(normalise)
         self.check_carrier = bool(check_carrier) and self.normalise
         self.max_gain = 10 ** (-max_gain_db / 20)
         self._lag = int(round(self.design.group_delay_samples))
+        self._delay = float(self._lag)
         # the level (and, to check for a carrier, the mean square) of every row: one filter run
         self._lp = BatchFir(self.design.taps, self.rows * (2 if self.check_carrier else 1),
-                            _long_fft(self.design.num_taps))
+                            long_fft_size(self.design.num_taps), rate_hz=self.rate_hz)
         self.reset()
 
     def for_rows(self, rows: int) -> "CarrierNormaliser":
         """The same normaliser for ``rows`` channels processed together."""
         return CarrierNormaliser(rows=rows, **self._args)
-
-    @property
-    def delay(self) -> float:
-        """Delay in samples (the level filter's group delay)."""
-        return float(self._lag)
 
     def reset(self) -> None:
         self._lp.reset()
@@ -200,11 +176,27 @@ class CarrierNormaliser(_SameRate):
         return np.zeros(0, np.float32)
 
 
-class DelayTrim:
-    """Drop the first ``count`` samples of a stream (compensates a known processing delay)."""
+class DelayTrim(Stage):
+    """Drop the first ``count`` samples of a stream (compensates a known processing delay).
 
-    def __init__(self, count: int) -> None:
+    A negative delay: the output runs ``count`` samples ahead of the input, so
+    ``delay`` is ``-count`` (a :class:`~iqsift.dsp.stages.Chain` adds it to the
+    delays of the stages before). Blocks pass through unchanged otherwise (same
+    dtype); nothing is held, so ``flush`` is empty.
+
+    Parameters
+    ----------
+    count : int
+        Samples to drop at the start of each stream.
+    rate_hz : float
+        Sample rate (samples/s), reported by ``rate_in`` and ``rate_out``
+        (default 1.0: a normalised rate, for callers that only trim).
+    """
+
+    def __init__(self, count: int, rate_hz: float = 1.0) -> None:
         self.count = int(count)
+        self._rate_in = self._rate_out = float(rate_hz)
+        self._delay = -float(self.count)
         self.reset()
 
     def reset(self) -> None:
@@ -217,14 +209,17 @@ class DelayTrim:
         self._left -= drop
         return block[drop:]
 
+    def flush(self) -> np.ndarray:
+        self.reset()
+        return np.zeros(0, np.float32)
 
-class FractionalDelay(_SameRate):
+
+class FractionalDelay(Stage):
     """Delay a real signal by a non-integer number of samples with a windowed-sinc interpolator.
 
-    The interpolator is the ideal fractional delay ``sinc(n − c)`` (Laakso et
-    al., "Splitting the unit delay", IEEE Signal Processing Magazine, Jan. 1996)
-    under a Kaiser window centred on the same point ``c``; it is flat and delays
-    exactly, to better than 0.01 dB and 1e-3 samples, below ``0.4·fs``.
+    The taps are :func:`iqsift.dsp.filters.fractional_delay_taps` (a
+    Kaiser-windowed ideal fractional delay, Laakso et al. 1996), applied by a
+    :class:`~iqsift.dsp.stages.FirFilter`; float32 out, nothing held.
 
     Parameters
     ----------
@@ -239,24 +234,12 @@ class FractionalDelay(_SameRate):
     """
 
     def __init__(self, rate_hz: float, delay_samples: float, half_length: int = 24, beta: float = 8.0) -> None:
-        if not delay_samples >= half_length:
-            raise ValueError(f"delay_samples: must be >= half_length {half_length}, got {delay_samples!r}")
-        centre = float(delay_samples)
-        k = np.arange(int(np.ceil(centre + half_length)) + 1)
-        arg = (k - centre) / (half_length + 1)
-        window = np.i0(beta * np.sqrt(np.clip(1 - arg**2, 0.0, None))) / np.i0(beta)
-        window[np.abs(arg) >= 1] = 0.0
-        taps = np.sinc(k - centre) * window
-        taps /= taps.sum()
+        taps = fractional_delay_taps(delay_samples, half_length, beta)
         self.taps = taps
         self._filter = FirFilter(taps, rate_hz, method="direct" if taps.size <= 256 else "fft")
         self.rate_hz = float(rate_hz)
-        self._delay = centre
-
-    @property
-    def delay(self) -> float:
-        """Delay in samples."""
-        return self._delay
+        self._rate_in = self._rate_out = self.rate_hz
+        self._delay = float(delay_samples)
 
     def reset(self) -> None:
         self._filter.reset()
@@ -281,6 +264,12 @@ class Squelch:
     Opening and closing follow the frame levels with a linear ramp between frame centres (no clicks).
     Squelch circuits of radio receivers work on the same principle (common practice); this one is
     causal in the frames it has seen.
+
+    Not a :class:`~iqsift.dsp.stages.Stage`: it does not turn a block of samples into a block of
+    samples. It watches the channel baseband (:meth:`feed`, at the channel rate) and answers with a
+    gain curve at any times asked for (:meth:`gain`, applied to the audio at the audio rate), so
+    its input and output are different signals at different rates, and the gain for a time is
+    known only once the frames around it have been fed.
 
     Parameters
     ----------
