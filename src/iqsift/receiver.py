@@ -542,7 +542,7 @@ class ChannelBackEnd:
         self._trim = DelayTrim(self.trim_samples)
         self.taps = taps or {}
         self.on_baseband = None  # optional callable receiving each channel baseband block (e.g. a SigMF writer)
-        self.analyzer = None  # optional iqsift.analysis.ChannelAnalyzer
+        self.analyzer = None  # optional iqsift.measure.ChannelAnalyzer
         # mute the audio while the channel holds only noise (Channel.squelch_db dB above the floor)
         self.squelch = Squelch(rate, ch.squelch_db) if ch.squelch_db is not None else None
         self.reset_levels()
@@ -822,12 +822,12 @@ class Receiver:
         return audio
 
     def analyze(self, **options: Any) -> "Receiver":
-        """Measure the channel while it runs (see :class:`iqsift.analysis.ChannelAnalyzer` for options).
+        """Measure the channel while it runs (see :class:`iqsift.measure.ChannelAnalyzer` for options).
 
         The report then carries the ``carrier``, ``modulation``, ``bandwidth``, ``audio`` and
         ``activity`` sections. Returns the receiver, for chaining.
         """
-        from .analysis import ChannelAnalyzer
+        from .measure.analyzer import ChannelAnalyzer
 
         nominal = self.channel.absolute_frequency(self.center_hz)
         if nominal is None:
@@ -984,5 +984,5 @@ class Receiver:
             "audio_rate_hz": self.audio_rate_hz,
         }
         if self.back.analyzer is not None:
-            report.update(self.back.analyzer.result())
+            report.update(self.back.analyzer.result().to_dict())
         return report

@@ -2,7 +2,7 @@
 
 A :class:`ChannelAnalyzer` sits on a receiver's channel baseband (carrier at
 0 Hz, channel rate) and on its audio, and in the same pass accumulates what
-:mod:`iqsift.measure` needs:
+the measurements need:
 
 * carrier frequency and level — :class:`~iqsift.measure.CarrierAccumulator`
   (phase-slope fit, far finer than a bin), AM modes only;
@@ -18,28 +18,51 @@ A :class:`ChannelAnalyzer` sits on a receiver's channel baseband (carrier at
   as for depth), median;
 * activity — :class:`~iqsift.measure.ActivityTracker` (10 ms frame levels).
 
-Memory is bounded: one analysis window of samples, the spectra, and a few
-numbers per frame or segment.
+Everything a caller can get wrong (weighting, test tone, x of the x-dB
+bandwidth, window) is refused when the analyzer is built, before any sample
+is fed. Memory is bounded: one analysis window of samples, the spectra, and a
+few numbers per frame or segment.
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from types import MappingProxyType
 from typing import Any
 
 import numpy as np
 
-from . import measure
-from .modes import AM_MODES
-from .spectra import WelchAccumulator
+from .. import checks
+from ..errors import ParameterError
+from ..modes import AM_MODES
+from ..spectra import WelchAccumulator
+from .activity import ActivitySegment, ActivityTracker, detect_activity
+from .audio import AudioQualityResult, audio_quality
+from .bandwidth import measure_bandwidth
+from .carrier import CarrierAccumulator
+from .modulation import ModulationResult, measure_depth
+from .sections import (
+    AnalysisResult,
+    AudioQualitySummary,
+    ChannelBandwidthResult,
+    ModulationSummary,
+    TunedCarrierResult,
+)
+from .weighting import check_weighting
 
-__all__ = ["ChannelAnalyzer", "ChannelMeasurement", "measure_channel"]
+__all__ = ["ChannelAnalyzer", "EDGE_GUARD_S"]
 
 
 _NO_RESULT = (ValueError, ArithmeticError, np.linalg.LinAlgError)
 """What a measurement raises when the data cannot give a result (too short, no tone, no carrier): the
-section is then reported empty. Anything else is a bug and propagates."""
+section is then reported empty, with the reason. Anything else is a bug and propagates."""
+
+EDGE_GUARD_S = 0.05
+"""Windows closer than this to the start or end of a run are not used: the receiver's filters are still
+filling there and its audio is faded over the first and last 5 ms."""
+
+Window = tuple[float, float, float, Any]
+"""One analysis window: start (s), end (s), mean power, its measurement result."""
 
 
 class ChannelAnalyzer:
@@ -59,13 +82,15 @@ class ChannelAnalyzer:
         Absolute nominal carrier frequency (Hz), or the offset when the capture
         centre is unknown; the carrier is reported on the same axis.
     tone_hz : float or None
-        Test-tone frequency for the audio quality figures (None: not measured).
+        Test-tone frequency for the audio quality figures (None: not measured); it must
+        lie in the audio band the channel delivers, 0 < tone_hz <= the highest modulating
+        frequency of the passband (and below half the audio rate).
     weighting : {"none", "psophometric", "a"}
         Noise weighting of the audio figures (ITU-T O.41, IEC 61672-1).
     x_db : float
-        x of the x-dB bandwidth (default 26 dB, ITU-R SM.328).
+        x of the x-dB bandwidth (default 26 dB, ITU-R SM.328); > 0.
     window_s : float
-        Analysis window for depth and audio quality (s).
+        Analysis window for depth and audio quality (s); > 0.
     activity : dict
         Options of :func:`~iqsift.measure.detect_activity` (threshold_db, hysteresis_db, min_hold_s,
         noise_floor_db ...). Without ``noise_floor_db`` the floor is the lower of the frame-level
@@ -74,6 +99,12 @@ class ChannelAnalyzer:
         The channel's passband relative to the carrier (Hz), for the spectral noise-floor estimate.
     time_offset_s : float
         Capture time of the first sample fed (s): activity times are reported as capture times.
+
+    Raises
+    ------
+    ParameterError
+        For an unknown ``weighting``, a ``tone_hz`` outside the channel's audio band, ``x_db <= 0``,
+        ``window_s <= 0`` or bad ``activity`` options, naming the parameter.
     """
 
     def __init__(
@@ -92,43 +123,59 @@ class ChannelAnalyzer:
         passband_hz: tuple[float, float] | None = None,
         time_offset_s: float = 0.0,
     ) -> None:
-        self.rate = float(channel_rate_hz)
-        self.audio_rate = float(audio_rate_hz)
+        self.rate = checks.positive("channel_rate_hz", channel_rate_hz)
+        self.audio_rate = checks.positive("audio_rate_hz", audio_rate_hz)
         self.mode = mode
         self.nominal_hz = nominal_hz
-        self.tone_hz = tone_hz
-        self.weighting = weighting
-        self.x_db = float(x_db)
+        self.passband_hz = passband_hz if passband_hz is not None else (-bandwidth_hz / 2, bandwidth_hz / 2)
+        self.tone_hz = None if tone_hz is None else self._check_tone(tone_hz)
+        self.weighting = check_weighting(weighting)
+        self.x_db = checks.positive("x_db", x_db)
+        window_s = checks.positive("window_s", window_s)
         self.is_am = mode in AM_MODES
         search = min(0.45 * self.rate, max(0.5 * bandwidth_hz, 2500.0))
-        self.carrier = measure.CarrierAccumulator(self.rate, 0.0, search_hz=search) if self.is_am else None
+        self.carrier = CarrierAccumulator(self.rate, 0.0, search_hz=search) if self.is_am else None
         nperseg = 1 << max(8, int(round(math.log2(self.rate / 8))))  # ~8 Hz bins
         self.spectrum = WelchAccumulator(self.rate, nperseg=nperseg, window="hann", name="channel")
         self._activity_options = dict(activity or {})
-        self.activity = measure.ActivityTracker(self.rate, 0.01, **self._activity_options)
-        self.passband_hz = passband_hz if passband_hz is not None else (-bandwidth_hz / 2, bandwidth_hz / 2)
-        self.noise_floor_used_dbfs = None
+        self.activity = ActivityTracker(self.rate, 0.01, **self._activity_options)
+        self.noise_floor_used_dbfs: float | None = None
         self.notes: list[str] = []
         self.time_offset_s = float(time_offset_s)
         self._win = max(1, int(round(window_s * self.rate)))
         self._awin = max(1, int(round(window_s * self.audio_rate)))
-        self._audio_levels: list[float] = []
         self._env: list[np.ndarray] = []
         self._env_n = 0
         self._env_t = 0
         self._env_skip = int(round(EDGE_GUARD_S * self.rate))
-        self._depths: list[tuple[float, Any]] = []
+        self._depths: list[Window] = []
+        self._depth_failures = _Failures()
         self._aud: list[np.ndarray] = []
         self._aud_n = 0
         self._aud_t = 0
         self._aud_skip = int(round(EDGE_GUARD_S * self.audio_rate))
-        self._quality: list[Any] = []
+        self._quality: list[Window] = []
+        self._quality_failures = _Failures()
+        self._segments: list[tuple[float, float]] = []
+        self._reasons: dict[str, str] = {}
+        self._result: AnalysisResult | None = None
+
+    def _check_tone(self, tone_hz: Any) -> float:
+        """``tone_hz`` if the channel's audio can hold it: 0 < tone <= the passband's highest modulating
+        frequency (the channel's audio top) and <= half the audio rate."""
+        tone = checks.positive("tone_hz", tone_hz)
+        top = min(max(abs(float(v)) for v in self.passband_hz), 0.5 * self.audio_rate)
+        if tone > top:
+            raise ParameterError(f"tone_hz: got {tone_hz!r} Hz; it must lie in the audio band the channel "
+                                 f"delivers, 0 < tone_hz <= {top:g} Hz")
+        return tone
 
     # -- feeding -------------------------------------------------------
     def feed_baseband(self, z: np.ndarray) -> None:
         """Channel baseband block (complex, carrier at 0 Hz)."""
         if z.size == 0:
             return
+        self._result = None
         if self.carrier is not None:
             self.carrier.feed(z)
         self.spectrum.feed(z)
@@ -148,6 +195,7 @@ class ChannelAnalyzer:
         """Audio block (float)."""
         if self.tone_hz is None or a.size == 0:
             return
+        self._result = None
         a = np.asarray(a, dtype=np.float64)
         skip = min(a.size, self._aud_skip)  # the run's start (filters filling, fade-in) is not analysed
         self._aud_skip -= skip
@@ -171,8 +219,9 @@ class ChannelAnalyzer:
             return
         level = float(np.mean(window**2))
         try:
-            result = measure.measure_depth(window, self.rate)
-        except _NO_RESULT:  # a window without modulation or carrier: no depth from it
+            result = measure_depth(window, self.rate)
+        except _NO_RESULT as exc:  # a window without modulation or carrier: no depth from it
+            self._depth_failures.add(exc)
             return
         t1 = self._env_t / self.rate
         self._depths.append((t1 - window.size / self.rate, t1, level, result))
@@ -185,37 +234,43 @@ class ChannelAnalyzer:
         if window.size < int(0.8 * self._awin):
             return
         try:
-            quality = measure.audio_quality(window, self.audio_rate, tone_hz=self.tone_hz, weighting=self.weighting)
-        except _NO_RESULT:
+            quality = audio_quality(window, self.audio_rate, tone_hz=self.tone_hz, weighting=self.weighting)
+        except _NO_RESULT as exc:  # a window without the tone: no figures from it
+            self._quality_failures.add(exc)
             return
         t1 = self._aud_t / self.audio_rate
         self._quality.append((t1 - window.size / self.audio_rate, t1, float(np.mean(window**2)), quality))
 
     # -- results -------------------------------------------------------
-    def result(self) -> dict[str, Any]:
-        """Report sections: carrier, modulation, bandwidth, audio, activity (DESIGN.md vocabulary)."""
+    def result(self) -> AnalysisResult:
+        """Report sections: carrier, modulation, bandwidth, audio, activity (DESIGN.md vocabulary).
+
+        ``result().to_dict()`` gives the report's keys; an empty section carries its reason
+        (:mod:`iqsift.measure.sections`). The result is kept until more samples are fed.
+        """
+        if self._result is None:
+            self._result = self._measure()
+        return self._result
+
+    def _measure(self) -> AnalysisResult:
         if self._env_n:
             self._depth_window(final=True)
         if self._aud_n:
             self._audio_window(final=True)
-        out: dict[str, Any] = {}
         self.notes = []
+        self._reasons = {}
         segments = self._activity_segments()
         self._segments = [(seg.start_s, seg.end_s) for seg in segments]
-        out["carrier"] = self._carrier_section()
-        out["modulation"] = self._modulation_section()
-        out["bandwidth"] = self._bandwidth_section()
-        out["audio"] = self._audio_section()
-        out["activity"] = []
-        for seg in segments:
-            entry = seg.to_dict()
-            entry["start_s"] += self.time_offset_s
-            entry["end_s"] += self.time_offset_s
-            out["activity"].append(entry)
-        out["noise_floor_dbfs"] = self.noise_floor_used_dbfs
-        if self.notes:
-            out["notes"] = list(self.notes)
-        return out
+        carrier = self._carrier_section()
+        modulation = self._modulation_section()
+        bandwidth = self._bandwidth_section()
+        audio = self._audio_section()
+        activity = tuple(ActivitySegment(seg.start_s + self.time_offset_s, seg.end_s + self.time_offset_s,
+                                         seg.level_dbfs) for seg in segments)
+        if not activity:
+            self._reasons["activity"] = self._no_activity_reason()
+        return AnalysisResult(carrier, modulation, bandwidth, audio, activity, self.noise_floor_used_dbfs,
+                              tuple(self.notes), MappingProxyType(dict(self._reasons)))
 
     def noise_floor_dbfs(self) -> float | None:
         """Noise power in the channel (dBFS), from the 10th percentile of the baseband PSD over the passband.
@@ -235,7 +290,7 @@ class ChannelAnalyzer:
         density = 10 ** (np.asarray(spec.values_db)[band] / 10)
         return float(10 * np.log10(np.percentile(density, 10) * (hi - lo)))
 
-    def _activity_segments(self) -> list[Any]:
+    def _activity_segments(self) -> list[ActivitySegment]:
         levels = self.activity.levels_db
         if levels.size == 0:
             return []
@@ -245,93 +300,93 @@ class ChannelAnalyzer:
             framewise = float(np.percentile(levels, options.get("floor_percentile", 10.0)))
             options["noise_floor_db"] = framewise if spectral is None else min(spectral, framewise)
         self.noise_floor_used_dbfs = options["noise_floor_db"]
-        return measure.detect_activity(levels, self.activity.frame_s, **options)
+        return detect_activity(levels, self.activity.frame_s, **options)
 
-    def _carrier_section(self) -> dict[str, Any] | None:
+    def _no_activity_reason(self) -> str:
+        if self.activity.levels_db.size == 0:
+            return f"no complete activity frame of {self.activity.frame_s:g} s was fed"
+        return (f"no burst rose the activity threshold above the noise floor of {self.noise_floor_used_dbfs:.1f} dBFS "
+                "for long enough (threshold_db, min_hold_s)")
+
+    def _carrier_section(self) -> TunedCarrierResult | None:
         if self.carrier is None:
+            self._reasons["carrier"] = f"not measured: {self.mode} is a suppressed-carrier mode"
             return None
         try:
-            c = self.carrier.result()
-        except _NO_RESULT:
+            measured = self.carrier.result()
+        except _NO_RESULT as exc:
+            self._reasons["carrier"] = f"no carrier estimate: {exc}"
             return None
-        d = c.to_dict()
-        if not c.detected:
-            # no carrier stood out of the noise: a frequency would be noise, report none
-            return {"detected": False, "frequency_hz": None, "error_hz": None, "level_dbfs": None,
-                    "nominal_hz": self.nominal_hz}
-        base = self.nominal_hz or 0.0
-        d["offset_from_tuning_hz"] = c.frequency_hz
-        d["frequency_hz"] = base + c.frequency_hz
-        d["nominal_hz"] = self.nominal_hz
-        d["error_hz"] = c.frequency_hz  # measured minus nominal: the baseband's 0 Hz is the nominal carrier
-        return d
+        return TunedCarrierResult.from_baseband(measured, self.nominal_hz)
 
-    def _modulation_section(self) -> dict[str, Any] | None:
+    def _modulation_section(self) -> ModulationSummary | None:
+        window_s = self._win / self.rate
         if not self._depths:
             self.notes.append("modulation: no analysis window of "
-                              f"{self._win / self.rate:g} s fits the selection and the carrier's activity")
+                              f"{window_s:g} s fits the selection and the carrier's activity")
+            if not self.is_am:
+                reason = f"not measured: modulation depth is defined for AM with a carrier, not the {self.mode} mode"
+            else:
+                reason = self._depth_failures.explain(f"no analysis window of {window_s:g} s fits the selection "
+                                                      "and the carrier's activity")
+            self._reasons["modulation"] = reason
             return None
-        chosen = _steady(self._depths, self._segments, self._env_t / self.rate)
+        chosen: list[ModulationResult] = _steady(self._depths, self._segments, self._env_t / self.rate)
         if not chosen:
             self.notes.append("modulation: every analysis window touches the start or end of the run")
+            self._reasons["modulation"] = "every analysis window touches the start or end of the run"
             return None
-        # one representative window (the median depth), so that every figure comes from one measurement
-        order = np.argsort([r.depth_percent for r in chosen])
-        rep = chosen[int(order[len(order) // 2])]
-        depth = np.array([r.depth_percent for r in chosen])
-        return {
-            "depth_percent": rep.depth_percent,
-            "depth_positive_percent": rep.depth_positive_percent,
-            "depth_negative_percent": rep.depth_negative_percent,
-            "tone_hz": rep.tone_hz,
-            "depth_percent_range": [float(depth.min()), float(depth.max())],
-            "windows": len(chosen),
-            "window_s": self._win / self.rate,
-            "method": f"the median window of {len(chosen)} steady window(s) of {self._win / self.rate:g} s; {rep.method}",
-        }
+        return ModulationSummary.of_windows(chosen, window_s)
 
-    def _bandwidth_section(self) -> dict[str, Any] | None:
+    def _bandwidth_section(self) -> ChannelBandwidthResult | None:
         if not self.spectrum.ready:
+            self._reasons["bandwidth"] = "no spectrum: the run is shorter than one analysis segment of the channel spectrum"
             return None
         spec = self.spectrum.result("spectrum")
         freqs = spec.relative_freqs_hz if hasattr(spec, "relative_freqs_hz") else spec.freqs_hz
         psd = 10 ** (np.asarray(spec.values_db) / 10)
         try:
-            bw = measure.measure_bandwidth(freqs, psd, 0.99, self.x_db).to_dict()
-        except _NO_RESULT:
+            measured = measure_bandwidth(freqs, psd, 0.99, self.x_db)
+        except _NO_RESULT as exc:
+            self._reasons["bandwidth"] = f"no bandwidth: {exc}"
             return None
-        bw["note"] = "measured on the channel baseband (after the channel filter), relative to the tuned carrier"
-        return bw
+        return ChannelBandwidthResult.of(measured)
 
-    def _audio_section(self) -> dict[str, Any] | None:
+    def _audio_section(self) -> AudioQualitySummary | None:
         if self.tone_hz is None:
+            self._reasons["audio"] = "not measured: no test tone given (tone_hz)"
             return None
-        chosen = _steady(self._quality, self._segments, self._aud_t / self.audio_rate) if self._quality else []
+        window_s = self._awin / self.audio_rate
+        chosen: list[AudioQualityResult] = (
+            _steady(self._quality, self._segments, self._aud_t / self.audio_rate) if self._quality else [])
         if not chosen:
             self.notes.append("audio: no steady analysis window of "
-                              f"{self._awin / self.audio_rate:g} s inside the run and the channel's activity")
+                              f"{window_s:g} s inside the run and the channel's activity")
+            self._reasons["audio"] = self._quality_failures.explain(
+                f"no steady analysis window of {window_s:g} s inside the run and the channel's activity")
             return None
-        # one representative window (the median SINAD): SNR, SINAD and THD come from the same measurement
-        order = np.argsort([q.sinad_db for q in chosen])
-        rep = chosen[int(order[len(order) // 2])]
-        out: dict[str, Any] = {key: getattr(rep, key) for key in
-                               ("snr_db", "sinad_db", "thd_percent", "thd_db", "receiver_sinad_db", "tone_hz")}
-        sinad = np.array([q.sinad_db for q in chosen], dtype=float)
-        out["sinad_db_range"] = [float(np.nanmin(sinad)), float(np.nanmax(sinad))]
-        out["weighting"] = self.weighting
-        out["windows"] = len(chosen)
-        out["window_s"] = self._awin / self.audio_rate
-        out["sinad_definition"] = "IEEE Std 1241 S/(N+D); receiver_sinad_db is (S+N+D)/(N+D)"
-        return out
+        return AudioQualitySummary.of_windows(chosen, window_s)
 
 
-EDGE_GUARD_S = 0.05
-"""Windows closer than this to the start or end of a run are not used: the receiver's filters are still
-filling there and its audio is faded over the first and last 5 ms."""
+class _Failures:
+    """How many analysis windows gave no result, and why the last one did not (for a section's reason)."""
+
+    def __init__(self) -> None:
+        self.count = 0
+        self.last = ""
+
+    def add(self, exc: Exception) -> None:
+        self.count += 1
+        self.last = str(exc)
+
+    def explain(self, reason: str) -> str:
+        """``reason``, plus the failed windows if there were any."""
+        if not self.count:
+            return reason
+        return f"{reason}; {self.count} window(s) gave no result, the last: {self.last}"
 
 
-def _steady(windows: list[tuple[float, float, float, Any]], segments: list[tuple[float, float]],
-            run_s: float) -> list[Any]:
+def _steady(windows: list[Window], segments: list[tuple[float, float]], run_s: float) -> list[Any]:
     """Results of the steady windows: away from the run's ends (EDGE_GUARD_S), inside one activity segment
     (10 ms margin) when any window is, and with a mean power within 1 dB of the 90th percentile."""
     pool = [w for w in windows if w[0] >= EDGE_GUARD_S and w[1] <= run_s - EDGE_GUARD_S]
@@ -342,82 +397,3 @@ def _steady(windows: list[tuple[float, float, float, Any]], segments: list[tuple
     levels = np.array([w[2] for w in pool])
     ref = np.percentile(levels, 90)
     return [w[3] for w in pool if w[2] >= ref * 10 ** (-0.1)]
-
-
-@dataclass(frozen=True)
-class ChannelMeasurement:
-    """The result of :func:`measure_channel`: one attribute per report section (DESIGN.md vocabulary).
-
-    Attributes
-    ----------
-    channel : dict
-        ``name``, ``frequency_hz``, ``bandwidth_hz``, ``mode``, ``level_dbfs`` ...
-    carrier : dict or None
-        ``frequency_hz``, ``error_hz`` (measured − nominal), ``level_dbfs``; None for suppressed-carrier modes.
-    modulation : dict or None
-        ``depth_percent``, ``depth_positive_percent``, ``depth_negative_percent``, ``tone_hz`` (AM only).
-    bandwidth : dict or None
-        ``occupied_hz`` (99 %, ITU-R SM.328), ``x_db_hz`` with ``x_db``.
-    audio : dict or None
-        ``snr_db``, ``sinad_db``, ``thd_percent``, ``receiver_sinad_db`` (with a test tone only).
-    activity : list of dict
-        ``start_s``, ``end_s``, ``level_dbfs`` per segment.
-    report : dict
-        The whole report (design, delay, ... as well).
-    """
-
-    channel: dict
-    carrier: dict | None
-    modulation: dict | None
-    bandwidth: dict | None
-    audio: dict | None
-    activity: list
-    report: dict
-
-    def to_dict(self) -> dict[str, Any]:
-        """The JSON report."""
-        return self.report
-
-
-def measure_channel(
-    capture,
-    channel,
-    *,
-    tone_hz: float | None = None,
-    weighting: str = "none",
-    x_db: float = 26.0,
-    threshold_db: float = 10.0,
-    start=None,
-    duration=None,
-    nonfinite: str = "error",
-) -> ChannelMeasurement:
-    """Measure one channel of a capture in one streaming pass (the library form of ``iqsift measure``).
-
-    Parameters
-    ----------
-    capture : Capture
-        From :func:`iqsift.open_capture`.
-    channel : Channel
-        From :func:`iqsift.make_channel`.
-    tone_hz : float, optional
-        Test-tone frequency (Hz) for SNR/SINAD/THD (IEEE Std 1241).
-    weighting : {"none", "psophometric", "a"}
-        Noise weighting (ITU-T O.41, IEC 61672-1).
-    x_db : float
-        x of the x-dB bandwidth (dB).
-    threshold_db : float
-        Activity threshold above the noise floor (dB).
-    start, duration : seconds or str, optional
-        The window to analyse (see :meth:`Capture.select`).
-    """
-    from .receiver import Receiver
-
-    selection = capture.select(start, duration)
-    receiver = Receiver.for_capture(capture, channel, selection, agc=False).analyze(
-        tone_hz=tone_hz, weighting=weighting, x_db=x_db, activity={"threshold_db": threshold_db},
-        time_offset_s=selection.start / capture.sample_rate_hz)
-    for _ in receiver.stream(capture.blocks(start=selection.start, count=selection.count, nonfinite=nonfinite)):
-        pass
-    report = receiver.report()
-    return ChannelMeasurement(report["channel"], report.get("carrier"), report.get("modulation"),
-                              report.get("bandwidth"), report.get("audio"), report.get("activity") or [], report)
