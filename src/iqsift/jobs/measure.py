@@ -6,7 +6,7 @@ from dataclasses import dataclass
 from typing import Any, Mapping
 
 from ..channel import Channel
-from ..errors import ParameterError
+from ..measure import WEIGHTINGS
 from ..receiver import Receiver
 from .common import (
     CaptureArg,
@@ -20,9 +20,6 @@ from .common import (
 )
 
 __all__ = ["MeasureResult", "measure_file", "WEIGHTINGS"]
-
-WEIGHTINGS = ("none", "psophometric", "a")
-"""Audio noise weightings: none, ITU-T O.41 psophometric, IEC 61672-1 A-weighting."""
 
 
 @dataclass(frozen=True)
@@ -86,8 +83,6 @@ def measure_file(
     start, duration, allow_nonfinite, progress, format, rate, center, strict
         As for :func:`demod_file`.
     """
-    if weighting not in WEIGHTINGS:
-        raise ParameterError(f"weighting: got {weighting!r}; use none, psophometric or a", parameters=("weighting",))
     with opened(capture, format=format, rate=rate, center=center, strict=strict) as cap:
         selection = cap.select(start, duration)
         receiver = Receiver.for_capture(cap, channel, selection, agc=False).analyze(
