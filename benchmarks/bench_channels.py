@@ -2,8 +2,8 @@
 
 One invented capture holds 64 AM channels (6 kHz, 25 kHz raster, one tone each) plus noise. iqsift
 extracts 1, 8, 32 and 64 of them (spread over the raster) in one pass each, with
-:class:`iqsift.extract.Extractor` (one forward FFT per block for all channels, batched inverse FFTs,
-one fine mixer + receiver back end per channel). Without ``iqsift.extract`` the script builds the
+:class:`iqsift.extractor.Extractor` (one forward FFT per block for all channels, batched inverse FFTs,
+one fine mixer + receiver back end per channel). Without ``iqsift.extractor`` the script builds the
 same pipeline from ``design_channel`` + ``FastConvChannelizer`` + ``ChannelBackEnd`` (``--pipeline``).
 
 Figures, per channel count N (each run in its own child process):
@@ -51,7 +51,7 @@ def pick(count: int) -> list[int]:
 
 
 # ----------------------------------------------------------------------------------------------
-# The fallback pipeline (used when iqsift.extract is unavailable, or with --pipeline bank)
+# The fallback pipeline (used when iqsift.extractor is unavailable, or with --pipeline bank)
 # ----------------------------------------------------------------------------------------------
 class BankPipeline:
     """Shared FastConvChannelizer + per-channel fine Mixer and ChannelBackEnd (mirrors ``Receiver``).
@@ -91,8 +91,7 @@ class BankPipeline:
         for i, (b, d, m) in enumerate(zip(self.backs, self.designs, self.mixers)):
             tail = m.process(tails[i])
             real_left = max(0, min(-(-self.samples_in // d.decimation) - b.baseband_samples, tail.size))
-            pieces = [b.process(tail[:real_left]), b.process(tail[real_left:], count_level=False),
-                      b.process(m.process(rests[i]), count_level=False), b.flush()]
+            pieces = [b.process(tail[:real_left]), b.finish(tail[real_left:], m.process(rests[i]))]
             audio = np.concatenate(pieces).astype(np.float32)
             need = max(0, int(round(self.samples_in * b.audio_rate_hz / self.rate_hz)) - self.audio_out[i])
             if audio.size < need:
@@ -110,14 +109,14 @@ def build_pipeline(kind: str, rate_hz: float, channels, workers: int, analyze: b
     """(pipeline, name): iqsift's Extractor when available (``kind`` auto/extractor), else BankPipeline."""
     if kind in ("auto", "extractor"):
         try:
-            from iqsift.extract import Extractor
+            from iqsift.extractor import Extractor
         except ImportError:
             if kind == "extractor":
                 raise
         else:
             ex = Extractor(rate_hz, channels, workers=workers, analyze=analyze)
             ex.audio_rates = [rx.audio_rate_hz for rx in ex.receivers]
-            return ex, "iqsift.extract.Extractor" + (" (analyze=True)" if analyze else " (analyze=False)")
+            return ex, "iqsift.extractor.Extractor" + (" (analyze=True)" if analyze else " (analyze=False)")
     return BankPipeline(rate_hz, channels, workers), "FastConvChannelizer + ChannelBackEnd (bench pipeline)"
 
 
@@ -195,7 +194,7 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--counts", default="1,8,32,64", help="channel counts (comma-separated, up to 64)")
     ap.add_argument("--workers", type=int, default=None, help="FFT threads for the bank (default: iqsift's own choice, all CPUs up to 4)")
     ap.add_argument("--pipeline", choices=("auto", "extractor", "bank"), default="auto",
-                    help="auto: iqsift.extract.Extractor when present, else the bench's own bank pipeline")
+                    help="auto: iqsift.extractor.Extractor when present, else the bench's own bank pipeline")
     ap.add_argument("--analyze", action="store_true", help="let the Extractor measure every channel too")
     ap.add_argument("--plain-channels", type=int, default=2,
                     help="channels the plain recipe is actually run for (its per-channel time is averaged)")

@@ -32,7 +32,7 @@ def test_carrier_error_within_1_hz_tuned_up_to_2_khz_off(seed):
     x = 0.05 * (1 + 0.5 * np.cos(2 * np.pi * 1000 * t)) * np.exp(2j * np.pi * true * t)
     x = x + noise(rng, n, 0.05**2 / 1000 * FS / 6000)
     rx = Receiver(FS, make_channel(offset=nominal, bandwidth="6k"), center_hz=1e9).analyze()
-    report = rx.run(samples=x.astype(np.complex64)).report
+    report = rx.run(samples=x.astype(np.complex64)).report.to_dict()
     assert report["carrier"]["frequency_hz"] == pytest.approx(1e9 + true, abs=1.0)
     assert report["carrier"]["error_hz"] == pytest.approx(true - nominal, abs=1.0)
 
@@ -46,7 +46,7 @@ def test_depth_and_tone_through_the_chain(depth):
     x = 0.1 * (1 + depth * np.cos(2 * np.pi * 1234.5 * t)) * np.exp(2j * np.pi * 30e3 * t)
     x = x + noise(rng, n, 0.1**2 / 1e4 * FS / 6000)
     report = Receiver(FS, make_channel(offset=30e3, bandwidth="6k")).analyze().run(
-        samples=x.astype(np.complex64)).report
+        samples=x.astype(np.complex64)).report.to_dict()
     assert report["modulation"]["depth_percent"] == pytest.approx(100 * depth, abs=1.0)
     assert report["modulation"]["tone_hz"] == pytest.approx(1234.5, abs=0.5)
 
@@ -63,7 +63,7 @@ def test_bursts_recovered_within_20_ms():
     x = gate * 0.05 * (1 + 0.7 * np.cos(2 * np.pi * 800 * t)) * np.exp(2j * np.pi * -20e3 * t)
     x = x + noise(rng, n, 1e-8)
     report = Receiver(FS, make_channel(offset=-20e3, bandwidth="6k")).analyze().run(
-        samples=x.astype(np.complex64)).report
+        samples=x.astype(np.complex64)).report.to_dict()
     found = [(s["start_s"], s["end_s"]) for s in report["activity"]]
     assert len(found) == len(spans)
     for (a, b), (fa, fb) in zip(spans, found):
@@ -80,7 +80,7 @@ def test_sinad_of_a_test_tone_through_the_chain():
     x = amp * (1 + mu * np.cos(2 * np.pi * 1000 * t)) * np.exp(2j * np.pi * 5e3 * t)
     x = x + noise(np.random.default_rng(1), n, n0 * FS)
     audio = Receiver(FS, make_channel(offset=5e3, bandwidth="6k")).analyze(tone_hz=1000).run(
-        samples=x.astype(np.complex64)).report["audio"]
+        samples=x.astype(np.complex64)).report.to_dict()["audio"]
     predicted = 10 * np.log10(amp**2 * mu**2 / (2 * n0 * 2700))
     assert audio["snr_db"] == pytest.approx(predicted, abs=1.0)
     # distortion is far below the noise here, so SINAD ~ SNR; receiver practice (S+N+D)/(N+D) >= S/(N+D)

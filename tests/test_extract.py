@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 
 from iqsift import Receiver, SigMFWriter, make_channel
-from iqsift.extract import Extractor
+from iqsift.extractor import Extractor
 
 from .test_receiver import AUDIO, am, message, message_snr_db
 

@@ -126,7 +126,7 @@ def test_coherent_locks_400_hz_off_tune():
     x = am(t, 30400.0, 0.05, 0.7) + complex_noise(np.random.default_rng(4), n, 1e-11)
     audio, rx = receive(x, make_channel(offset=30000.0, bandwidth="8k", mode="coherent"))
     assert message_snr_db(audio, message(np.arange(audio.size) / AUDIO)) >= 40
-    assert rx.report()["detector"]["carrier_offset_hz"] == pytest.approx(400.0, abs=1.0)
+    assert rx.report().to_dict()["detector"]["carrier_offset_hz"] == pytest.approx(400.0, abs=1.0)
 
 
 def test_envelope_noise_performance_matches_haykin():
@@ -163,7 +163,7 @@ def test_real_if_input():
     rx = Receiver(fs, make_channel(offset=21400.0, bandwidth="6k"), real_input=True)
     audio = np.concatenate(list(rx.stream([x.astype(np.complex64)])))
     assert message_snr_db(audio, message(np.arange(audio.size) / AUDIO)) >= 50
-    assert rx.report()["channel"]["level_dbfs"] == pytest.approx(
+    assert rx.report().to_dict()["channel"]["level_dbfs"] == pytest.approx(
         10 * np.log10(0.2**2 * (1 + 0.6**2 * np.mean(message(t) ** 2))), abs=0.3)
 
 
@@ -177,7 +177,7 @@ def test_audio_is_time_aligned_with_the_capture():
     env = np.abs(audio[int(0.25 * AUDIO):])  # skip the carrier-level filter's start-up
     onset = 0.25 + np.argmax(env > 0.2) / AUDIO  # 80 % modulation reads 0.4 of full scale
     assert onset == pytest.approx(0.5, abs=0.001)
-    assert rx.report()["delay"]["compensated_s"] > 0
+    assert rx.report().to_dict()["delay"]["compensated_s"] > 0
 
 
 @settings(max_examples=8, deadline=None)

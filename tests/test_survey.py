@@ -344,7 +344,7 @@ def test_aero_raster_names_and_plan_round_trip(tmp_path):
     # the tuning offsets extract would use
     assert [round(c.tuning_offset_hz(centre), 3) for c in back] == [
         round(aero_channel(k).frequency_hz - centre, 3) for k in channels]
-    extract = pytest.importorskip("iqsift.extract")
+    extract = pytest.importorskip("iqsift.extractor")
     chans = extract.channels_from_plan(back, centre)
     assert [c.name for c in chans] == [c.name for c in back]
 

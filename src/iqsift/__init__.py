@@ -24,7 +24,9 @@ from .errors import (  # noqa: E402
     OutputExistsError,
     ParameterError,
 )
-from .receiver import Receiver, ReceiverResult, design_channel  # noqa: E402
+from .extractor import Extractor  # noqa: E402
+from .receiver import Receiver, ReceiverReport, ReceiverResult, design_channel  # noqa: E402
+from .spectra import Spectrum  # noqa: E402
 from .units import parse_frequency  # noqa: E402
 
 __all__ = [
@@ -34,14 +36,17 @@ __all__ = [
     "Channel",
     "ChannelMeasurement",
     "Emission",
+    "Extractor",
     "InputError",
     "IqsiftError",
     "IqsiftWarning",
     "OutputExistsError",
     "ParameterError",
     "Receiver",
+    "ReceiverReport",
     "ReceiverResult",
     "SigMFWriter",
+    "Spectrum",
     "__version__",
     "design_channel",
     "make_channel",

@@ -16,7 +16,38 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["write_stage_plots", "stage_overlays", "stage_plot_names", "check_stage_plot_folder"]
+__all__ = ["AudioKeeper", "write_stage_plots", "stage_overlays", "stage_plot_names", "check_stage_plot_folder"]
+
+KEEP_AUDIO_S = 1200.0
+"""The waveform plot shows at most the first 20 minutes of audio (19 MB kept at 16 kHz)."""
+
+
+class AudioKeeper:
+    """Keeps the first :data:`KEEP_AUDIO_S` seconds of a receiver's audio for the waveform plot.
+
+    Attach it with ``receiver.on_audio(keeper.feed)`` (or :meth:`attach`); memory stays bounded
+    however long the run.
+    """
+
+    def __init__(self, rate_hz: float, max_s: float = KEEP_AUDIO_S) -> None:
+        self.room = int(max_s * rate_hz)
+        self._parts: list[np.ndarray] = []
+
+    @classmethod
+    def attach(cls, receiver: Any) -> "AudioKeeper":
+        """A keeper fed by ``receiver``'s audio."""
+        keeper = cls(receiver.audio_rate_hz)
+        receiver.on_audio(keeper.feed)
+        return keeper
+
+    def feed(self, audio: np.ndarray) -> None:
+        if self.room > 0:
+            self._parts.append(audio[: self.room].copy())
+            self.room -= min(self.room, audio.size)
+
+    def audio(self) -> np.ndarray:
+        """The audio kept so far."""
+        return np.concatenate(self._parts) if self._parts else np.zeros(0, np.float32)
 
 _TITLES = {
     "input": "input around the channel (capture, before any processing)",
@@ -109,7 +140,8 @@ def write_stage_plots(receiver, out_dir: Path, *, capture_name: str, fmt: str = 
     """Write the stage figures and their data into ``out_dir``; returns the paths.
 
     With ``outputs`` (an :class:`~iqsift.captures.OutputSet`) the files are
-    committed with the job's other outputs; otherwise written directly.
+    committed with the job's other outputs; otherwise written directly. The waveform
+    plot is drawn from ``audio`` (e.g. kept by an :class:`AudioKeeper`), when given.
     """
     from . import plots
 
@@ -159,8 +191,7 @@ def write_stage_plots(receiver, out_dir: Path, *, capture_name: str, fmt: str = 
         plots.save_plot_data({"times_s": np.round(np.asarray(times), 4), "freqs_hz": np.round(np.asarray(freqs), 3),
                               "power_db": np.round(np.asarray(power), 1), "units": units}, target(f"{stem}.json"))
         written.append(out_dir / f"{stem}.json")
-    audio = receiver.kept_audio() if audio is None else audio
-    if audio.size:
+    if audio is not None and audio.size:
         plots.plot_waveform(audio, receiver.audio_rate_hz, target(f"waveform.{fmt}"), title=f"{title}\naudio", fmt=fmt)
         written.append(out_dir / f"waveform.{fmt}")
     return written

@@ -49,10 +49,13 @@ class BatchFir(Stage):
     -----
     A :class:`~iqsift.dsp.stages.Stage` whose blocks may also be 2-D (one
     channel per row). ``delay`` is ``(len(taps) − 1)/2``, the group delay of
-    symmetric taps; the filter is causal and holds nothing (``flush`` is empty).
+    symmetric taps, unless ``delay_samples`` states it (taps made by convolving a
+    symmetric filter with a fractional delay); the filter is causal and holds
+    nothing (``flush`` is empty).
     """
 
-    def __init__(self, taps: np.ndarray, rows: int, fft_size: int, rate_hz: float = 1.0) -> None:
+    def __init__(self, taps: np.ndarray, rows: int, fft_size: int, rate_hz: float = 1.0,
+                 delay_samples: float | None = None) -> None:
         self.taps = np.asarray(taps, dtype=np.float64)
         self.m = self.taps.size - 1
         self.nfft = int(fft_size)
@@ -60,12 +63,12 @@ class BatchFir(Stage):
         self.H = sfft.rfft(self.taps, self.nfft).astype(np.complex64)
         self.rows = int(rows)
         self._rate_in = self._rate_out = float(rate_hz)
-        self._delay = self.m / 2.0
+        self._delay = self.m / 2.0 if delay_samples is None else float(delay_samples)
         self.reset()
 
     def for_rows(self, rows: int) -> "BatchFir":
-        """A fresh filter with the same taps (and rate) for ``rows`` channels."""
-        return BatchFir(self.taps, rows, self.nfft, self._rate_in)
+        """A fresh filter with the same taps (rate and delay) for ``rows`` channels."""
+        return BatchFir(self.taps, rows, self.nfft, self._rate_in, self._delay)
 
     def reset(self) -> None:
         self.state = np.zeros((self.rows, self.m), np.float32)

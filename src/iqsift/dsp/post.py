@@ -35,6 +35,9 @@ class CarrierNormaliser(Stage):
     check_carrier : bool
         Guard against a detector output without a carrier (see below); not
         needed after an envelope detector, whose output is never zero-mean.
+    settle_samples : int
+        The first inputs are the upstream detector's start-up, not signal: they
+        are left out of the carrier level (as is padding after :meth:`signal_ends`).
     max_gain_db : float
         The divisor never falls below the strongest level seen so far minus
         this many dB: when the carrier goes away (push-to-talk off, deep
@@ -55,8 +58,9 @@ class CarrierNormaliser(Stage):
     :attr:`delay`. The stage holds nothing at the end (flush is empty).
     Blocks may be 1-D (one channel) or 2-D with one channel per row
     (``rows``), all rows sharing the same validity mask. ``process(block)``
-    alone is the :class:`~iqsift.dsp.stages.Stage` protocol (every sample
-    valid); ``process(block, valid)`` adds the mask.
+    alone is the :class:`~iqsift.dsp.stages.Stage` protocol: the samples that
+    carry signal follow from ``settle_samples`` and :meth:`signal_ends`;
+    ``process(block, valid)`` states them explicitly instead.
     """
 
     def __init__(
@@ -69,10 +73,13 @@ class CarrierNormaliser(Stage):
         normalise: bool = True,
         max_gain_db: float = 30.0,
         check_carrier: bool = True,
+        settle_samples: int = 0,
         rows: int = 1,
     ) -> None:
-        self._args = dict(rate_hz=rate_hz, pass_hz=pass_hz, stop_hz=stop_hz, atten_db=atten_db, floor=floor,
-                          normalise=normalise, max_gain_db=max_gain_db, check_carrier=check_carrier)
+        self._settings = dict(rate_hz=rate_hz, pass_hz=pass_hz, stop_hz=stop_hz, atten_db=atten_db, floor=floor,
+                              normalise=normalise, max_gain_db=max_gain_db, check_carrier=check_carrier,
+                              settle_samples=int(settle_samples))
+        self.settle_samples = int(settle_samples)
         stop_hz = min(stop_hz, 0.45 * rate_hz)
         pass_hz = min(pass_hz, 0.5 * stop_hz)
         self.design = design_lowpass(rate_hz, pass_hz, stop_hz, ripple_db=0.5, atten_db=atten_db, method="kaiser")
@@ -90,12 +97,37 @@ class CarrierNormaliser(Stage):
                             long_fft_size(self.design.num_taps), rate_hz=self.rate_hz)
         self.reset()
 
+    @property
+    def settings(self) -> dict[str, float | bool | int]:
+        """The parameters this normaliser was built with (equal settings: identical processing)."""
+        return dict(self._settings)
+
     def for_rows(self, rows: int) -> "CarrierNormaliser":
         """The same normaliser for ``rows`` channels processed together."""
-        return CarrierNormaliser(rows=rows, **self._args)
+        return CarrierNormaliser(rows=rows, **self._settings)  # type: ignore[arg-type]
+
+    def signal_ends(self, samples_in: int) -> None:
+        """Input from sample ``samples_in`` on is padding: leave it out of the carrier level."""
+        self._signal_end = int(samples_in)
+
+    def _validity(self, n: int) -> np.ndarray | None:
+        """Which of the next ``n`` inputs carry signal: not the upstream start-up (``settle_samples``)
+        nor padding after :meth:`signal_ends`. None: all of them (the usual case)."""
+        first = self._seen
+        self._seen += n
+        stop = self._signal_end + self.settle_samples if self._signal_end is not None else None
+        if first >= self.settle_samples and (stop is None or first + n <= stop):
+            return None
+        idx = first + np.arange(n)
+        keep = idx >= self.settle_samples
+        if stop is not None:
+            keep &= idx < stop
+        return keep
 
     def reset(self) -> None:
         self._lp.reset()
+        self._seen = 0
+        self._signal_end: int | None = None
         self._cover = FirFilter(self.design.taps, self.rate_hz)
         self._run = 0  # consecutive valid samples fed most recently
         self._cover_stale = False
@@ -135,6 +167,9 @@ class CarrierNormaliser(Stage):
         n = d.shape[1]
         if n == 0:
             return np.zeros(0 if flat else (self.rows, 0), np.float32)
+        own = self._validity(n)
+        if valid is None:
+            valid = own
         cover = self._coverage(n, valid)
         dv = d if valid is None or cover is None else d * np.asarray(valid, dtype=np.float32)
         if self.check_carrier:

@@ -148,10 +148,12 @@ def demod_file(
         selection = cap.select(start, duration)
         receiver = Receiver.for_capture(cap, channel, selection, engine=engine, agc=agc, spectra=bool(spectra))
         spectra_dir = Path(spectra) if spectra else None
+        keeper = None
         if spectra_dir is not None:
-            from ..stage_plots import check_stage_plot_folder
+            from ..stage_plots import AudioKeeper, check_stage_plot_folder
 
             check_stage_plot_folder(spectra_dir, plot_format, force)  # before any work
+            keeper = AudioKeeper.attach(receiver)
         with OutputSet(force=force, protect=cap.files) as outputs:
             audio_writer = AudioWriter(output, receiver.audio_rate_hz, outputs=outputs)
             report_tmp = outputs.reserve(report) if report else None
@@ -162,7 +164,7 @@ def demod_file(
                     baseband, capture=cap, selection=selection, rate_hz=receiver.design.channel_rate_hz,
                     center_hz=channel.absolute_frequency(centre), channel=channel.as_dict(centre),
                     design=receiver.design.as_dict(centre), outputs=outputs)
-                receiver.back.on_baseband = bb_writer.write
+                receiver.on_baseband(bb_writer.write)
             blocks = cap.blocks(start=selection.start, count=selection.count,
                                 nonfinite=nonfinite_policy(allow_nonfinite))
             for audio in receiver.stream(counted(blocks, selection.count, progress)):
@@ -170,14 +172,15 @@ def demod_file(
             audio_writer.close()
             if bb_writer is not None:
                 bb_writer.close()
-            rx_report = receiver.report()
+            rx_report = receiver.report().to_dict()
             elapsed_s = time.perf_counter() - started
             spectra_files = None
             if spectra_dir is not None:
                 from ..stage_plots import write_stage_plots
 
                 spectra_files = tuple(str(p) for p in write_stage_plots(
-                    receiver, spectra_dir, capture_name=cap.path.name, fmt=plot_format, outputs=outputs))
+                    receiver, spectra_dir, capture_name=cap.path.name, fmt=plot_format, outputs=outputs,
+                    audio=None if keeper is None else keeper.audio()))
             result = DemodResult(
                 receiver=rx_report,
                 capture=CaptureSummary.of(cap),

@@ -10,7 +10,7 @@ from typing import Any, Mapping
 
 from ..captures import AudioWriter, Capture, OutputSet, SampleRange, SigMFWriter
 from ..errors import ParameterError
-from ..extract import Extractor, channels_from_plan
+from ..extractor import Extractor
 from ..jsonable import dumps
 from ..plan import ChannelPlan, load_plan
 from .common import (
@@ -131,10 +131,7 @@ def extract_file(
         raise ParameterError(f"out_dir {folder}: exists and is not a folder", parameters=("out_dir",))
     with opened(capture, format=format, rate=rate, center=center, strict=strict) as cap:
         selection = cap.select(start, duration)
-        centre = cap.center_for(selection)
-        extractor = Extractor(cap.sample_rate_hz, channels_from_plan(plan_obj, centre), center_hz=centre,
-                              real_input=not cap.is_complex, spectra=spectra,
-                              time_offset_s=selection.start / cap.sample_rate_hz)
+        extractor = Extractor.from_plan(cap, plan_obj, selection=selection, spectra=spectra)
         parent = folder.parent if str(folder.parent) else Path(".")
         if not parent.is_dir():
             raise ParameterError(f"out_dir {folder}: the folder {parent} does not exist", parameters=("out_dir",))
@@ -181,10 +178,15 @@ def _run(extractor: Extractor, cap: Capture, selection: SampleRange, folder: Pat
                 bb_path, capture=cap, selection=selection, rate_hz=rx.design.channel_rate_hz,
                 center_hz=rx.channel.absolute_frequency(centre), channel=rx.channel.as_dict(centre),
                 design=rx.design.as_dict(centre), outputs=outputs)
-            rx.back.on_baseband = writer.write
+            rx.on_baseband(writer.write)
             bb_writers.append(writer)
             entry["baseband"] = str(bb_path)
         files.append(entry)
+    keepers = []
+    if spectra:
+        from ..stage_plots import AudioKeeper
+
+        keepers = [AudioKeeper.attach(rx) for rx in extractor.receivers]
     report_tmp = outputs.reserve(folder / "report.json")
     blocks = cap.blocks(start=selection.start, count=selection.count, nonfinite=nonfinite)
     t0 = time.perf_counter()
@@ -196,14 +198,15 @@ def _run(extractor: Extractor, cap: Capture, selection: SampleRange, folder: Pat
     for closing in (*writers, *bb_writers):
         closing.close()
     channels = []
-    for rx, entry, audio_writer in zip(extractor.receivers, files, writers):
-        report = rx.report()
+    for i, (rx, entry, audio_writer) in enumerate(zip(extractor.receivers, files, writers)):
+        report = rx.report().to_dict()
         entry["audio_clipped_samples"] = audio_writer.clipped_samples
         if spectra:
             from ..stage_plots import write_stage_plots
 
             entry["spectra"] = [str(p) for p in write_stage_plots(
-                rx, folder / "spectra" / _stem(rx), capture_name=cap.path.name, fmt=plot_format, outputs=outputs)]
+                rx, folder / "spectra" / _stem(rx), capture_name=cap.path.name, fmt=plot_format, outputs=outputs,
+                audio=keepers[i].audio())]
         report["outputs"] = entry
         channels.append(report)
     result = ExtractResult(

@@ -92,4 +92,5 @@ def measure_file(
                             nonfinite=nonfinite_policy(allow_nonfinite))
         for _ in receiver.stream(counted(blocks, selection.count, progress)):
             pass
-        return MeasureResult(receiver.report(), CaptureSummary.of(cap), SelectionSummary.of(cap, selection))
+        return MeasureResult(receiver.report().to_dict(), CaptureSummary.of(cap),
+                             SelectionSummary.of(cap, selection))

@@ -3,10 +3,9 @@
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Any, cast
+from typing import Any
 
 from .activity import ActivitySegment
-from .analyzer import ChannelAnalyzer
 from .sections import AudioQualitySummary, ChannelBandwidthResult, ModulationSummary, TunedCarrierResult
 
 __all__ = ["ChannelMeasurement", "measure_channel"]
@@ -96,7 +95,7 @@ def measure_channel(
     for _ in receiver.stream(capture.blocks(start=selection.start, count=selection.count, nonfinite=nonfinite)):
         pass
     report = receiver.report()
-    analyzer = cast(ChannelAnalyzer, receiver.back.analyzer)  # attached by analyze() above
-    analysis = analyzer.result()  # kept by the analyzer: the report's own sections
-    return ChannelMeasurement(report["channel"], analysis.carrier, analysis.modulation, analysis.bandwidth,
-                              analysis.audio, analysis.activity, report)
+    analysis = report.analysis
+    assert analysis is not None  # analyze() above
+    return ChannelMeasurement(dict(report.channel), analysis.carrier, analysis.modulation, analysis.bandwidth,
+                              analysis.audio, analysis.activity, report.to_dict())

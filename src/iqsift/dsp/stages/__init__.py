@@ -1,6 +1,7 @@
 """Stateful streaming DSP stages, each with a one-shot function beside it.
 
-* :mod:`.base` -- the :class:`Stage` protocol, :class:`Chain`, :func:`run_once`.
+* :mod:`.base` -- the :class:`Stage` protocol, :class:`Chain`, :class:`TapPoint` (observers),
+  :class:`Scale`, :func:`run_once`.
 * :mod:`.oscillator` -- exact-phase oscillator, :class:`Mixer`.
 * :mod:`.fir` -- :class:`FirFilter`, :class:`FirDecimator`,
   :class:`RationalResampler` and their polyphase core :class:`UpFirDn`.
@@ -10,13 +11,15 @@ The taps these stages apply are designed in :mod:`iqsift.dsp.filters`.
 """
 
 from .audio import AGC, AudioBandpass, DCBlock, agc, audio_bandpass, dc_block
-from .base import Chain, Stage, checked_taps, run_once
+from .base import Chain, Scale, Stage, TapPoint, checked_taps, run_once
 from .fir import FirDecimator, FirFilter, RationalResampler, UpFirDn, fir_decimate, fir_filter, resample
 from .oscillator import ExactPhase, Mixer, exact_ratio, mix
 
 __all__ = [
     "Stage",
     "Chain",
+    "TapPoint",
+    "Scale",
     "Mixer",
     "FirFilter",
     "FirDecimator",

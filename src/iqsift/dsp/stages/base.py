@@ -43,13 +43,13 @@ post-processing (:mod:`iqsift.dsp.post`) and the row-wise
 from __future__ import annotations
 
 import abc
-from typing import Iterable, Sequence
+from typing import Callable, Iterable, Sequence
 
 import numpy as np
 
 from ...errors import ParameterError
 
-__all__ = ["Stage", "Chain", "run_once", "checked_taps"]
+__all__ = ["Stage", "Chain", "TapPoint", "Scale", "run_once", "checked_taps"]
 
 
 def checked_taps(name: str, taps) -> np.ndarray:
@@ -133,6 +133,18 @@ class Stage(abc.ABC):
         out = self._empty()
         self.reset()
         return out
+
+    def signal_ends(self, samples_in: int) -> None:
+        """Be told that input after the first ``samples_in`` samples of this stream is padding, not signal.
+
+        A receiver pushes zeros in at the end to bring the delayed tail of its chain out; a stage
+        that estimates something from its input (a carrier level) leaves that padding out. The
+        default ignores the notice: most stages treat every sample alike.
+        """
+
+    def output_index(self, samples_in: int) -> int:
+        """Where the effect of input sample ``samples_in`` appears in the output (delay included)."""
+        return int(round(samples_in * self.rate_out / self.rate_in + self.delay))
 
     # helpers ---------------------------------------------------------------
     def _prep(self, block) -> np.ndarray:
@@ -234,3 +246,71 @@ class Chain(Stage):
     def reset(self) -> None:
         for s in self._stages:
             s.reset()
+
+    def signal_ends(self, samples_in: int) -> None:
+        """Tell every stage where the signal ends in its own input (see :meth:`Stage.signal_ends`)."""
+        for s in self._stages:
+            s.signal_ends(samples_in)
+            samples_in = s.output_index(samples_in)
+
+
+class TapPoint(Stage):
+    """A point in a chain where observers see the signal: passes blocks through unchanged.
+
+    Each observer is called with every non-empty block (the array itself: observers must not
+    modify it). Spectrum accumulators, writers and analyzers attach here.
+
+    Parameters
+    ----------
+    rate_hz : float
+        Sample rate at this point (samples/s).
+    """
+
+    def __init__(self, rate_hz: float) -> None:
+        self._rate_in = self._rate_out = float(rate_hz)
+        self._delay = 0.0
+        self._observers: list[Callable[[np.ndarray], object]] = []
+
+    def attach(self, observer: Callable[[np.ndarray], object]) -> None:
+        """Call ``observer(block)`` with every block that passes from now on."""
+        self._observers.append(observer)
+
+    @property
+    def observed(self) -> bool:
+        """True once something watches this point."""
+        return bool(self._observers)
+
+    def process(self, block: np.ndarray) -> np.ndarray:
+        if block.size:
+            for observer in self._observers:
+                observer(block)
+        return block
+
+    def reset(self) -> None:
+        """Nothing to forget (observers stay attached)."""
+
+    def flush(self) -> np.ndarray:
+        return np.zeros(0, np.float32)
+
+
+class Scale(Stage):
+    """Multiply a real signal by a constant gain (float32 out, nothing held).
+
+    Parameters
+    ----------
+    gain : float
+        The factor.
+    rate_hz : float
+        Sample rate (samples/s).
+    """
+
+    def __init__(self, gain: float, rate_hz: float) -> None:
+        self.gain = np.float32(gain)
+        self._rate_in = self._rate_out = float(rate_hz)
+        self._delay = 0.0
+
+    def process(self, block: np.ndarray) -> np.ndarray:
+        return np.asarray(block, dtype=np.float32) * self.gain
+
+    def reset(self) -> None:
+        """Stateless."""

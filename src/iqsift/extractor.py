@@ -13,7 +13,7 @@ first sample is read; a channel that cannot be extracted is refused by name.
 
 from __future__ import annotations
 
-from typing import Any, Iterator, Sequence
+from typing import TYPE_CHECKING, Any, Hashable, Iterable, Iterator, Sequence, cast
 
 import numpy as np
 
@@ -24,7 +24,11 @@ from .dsp.post import CarrierNormaliser
 from .dsp.stages import Mixer, UpFirDn
 from .errors import ParameterError
 from .plan import ChannelPlan, PlannedChannel
-from .receiver import Receiver, bank_channel, input_tap, valid_mask
+from .receiver import ChannelDesign, Receiver, ReceiverReport, StageTaps, bank_channel, design_channel, input_tap
+
+if TYPE_CHECKING:
+    from .captures import Capture, SampleRange
+    from .spectra import Spectrum
 
 __all__ = ["Extractor", "channels_from_plan"]
 
@@ -54,12 +58,13 @@ def channels_from_plan(plan: ChannelPlan | Sequence[PlannedChannel], center_hz: 
     return out
 
 
-class _AmBatch:
+class _EnvelopeBatch:
     """Envelope-detected AM channels with identical chains, processed together as rows of 2-D arrays.
 
     The detector, carrier normaliser, band-pass and resampler of every member are the same filters with
-    the same taps, so one set of calls per block serves them all (the stages take one channel per row); the
-    per-channel parts (level, taps, analyzer, squelch, fades, writers) stay with each channel's receiver.
+    the same taps (equal :meth:`ChannelBackEnd.batch_key`), so one set of calls per block serves them all
+    (the stages take one channel per row); the per-channel parts (level, observers, squelch, fades,
+    writers) stay with each channel's receiver.
     """
 
     def __init__(self, members: list[int], receivers: list[Receiver]) -> None:
@@ -67,67 +72,36 @@ class _AmBatch:
         self.rxs = [receivers[i] for i in members]
         lead = self.rxs[0].back
         rows = len(members)
-        normaliser, merged = lead.post
         # the lead channel's own stages, made for all rows (same taps, fresh state)
-        self.normaliser = normaliser.for_rows(rows)
-        self.fir = merged.stage.for_rows(rows)
+        self.normaliser = cast(CarrierNormaliser, lead.normaliser).for_rows(rows)
+        self.fir = cast(BatchFir, lead.band_filter).for_rows(rows)
         r = lead.resampler
         self.resampler = UpFirDn(r.taps.astype(np.float32), r.up, r.down)
         self.gain = np.float32(lead.audio_gain)
-        self.detector_out = 0
-        self.real_total: int | None = None
-        self.baseband = 0
 
-    @staticmethod
-    def key(rx: Receiver):
-        """Receivers with equal keys run identical audio chains (None: cannot be batched)."""
-        back = rx.back
-        if rx.channel.mode != "envelope" or back.agc or len(back.post) != 2:
-            return None
-        normaliser, merged = back.post
-        if not isinstance(normaliser, CarrierNormaliser) or normaliser.check_carrier or not normaliser.normalise:
-            return None
-        if not isinstance(getattr(merged, "stage", None), BatchFir):
-            return None
-        r = back.resampler
-        return (rx.design.channel_rate_hz, tuple(sorted(normaliser._args.items())),
-                merged.stage.taps.tobytes(), merged.stage.nfft, r.up, r.down, r.taps.tobytes(),
-                back.audio_gain, back.trim_samples)
-
-    def _valid(self, count: int):
-        first = self.detector_out
-        self.detector_out += count
-        return valid_mask(first, count, 0, self.real_total)  # the envelope detector has no delay
-
-    def run(self, rows: list[np.ndarray], count_level: bool = True) -> np.ndarray:
+    def _run(self, rows: list[np.ndarray], signal: bool = True) -> np.ndarray:
         """Process one block of every member's baseband; returns the audio rows (before trimming)."""
-        if not count_level and self.real_total is None:
-            self.real_total = self.baseband
-        for rx, row in zip(self.rxs, rows):
-            rx.back.account(row, count_level)
-        if count_level:
-            self.baseband += rows[0].size
-        d = np.abs(np.stack(rows)).astype(np.float32)
+        if signal:
+            for rx, row in zip(self.rxs, rows):
+                rx.back.observe(row)
+        d = np.abs(np.stack(rows)).astype(np.float32)  # the envelope detector (no delay)
         for rx, row in zip(self.rxs, d):
-            tap = rx.back.taps.get("detector")
-            if tap is not None and row.size:
-                tap.feed(row)
-        d = self.normaliser.process(d, self._valid(d.shape[1]))
+            rx.back.observe_detector(row)
+        d = self.normaliser.process(d)
         d = self.fir.process(d) * self.gain
         return self.resampler.process(d)
 
     def process(self, rows: list[np.ndarray]) -> list[np.ndarray]:
-        audio = self.run(rows)
-        return [rx._emit(rx.back._trim.process(a)) for rx, a in zip(self.rxs, audio)]
+        audio = self._run(rows)
+        return [rx.emit(rx.back.trim(a)) for rx, a in zip(self.rxs, audio)]
 
     def finish(self, tails: list[np.ndarray], rests: list[np.ndarray]) -> list[np.ndarray]:
         """The batch form of :meth:`Receiver.finish_baseband`."""
-        for rx in self.rxs:
-            rx._warn_if_short()
         real_left = self.rxs[0].real_baseband_left(tails[0].size)  # the same for every member
-        parts = [self.run([t[:real_left] for t in tails]), self.run([t[real_left:] for t in tails], False),
-                 self.run(rests, False)]
-        return [rx.emit_last(rx.back._trim.process(np.concatenate([p[i] for p in parts])))
+        first = self._run([t[:real_left] for t in tails])
+        self.normaliser.signal_ends(self.rxs[0].back.baseband_samples)
+        parts = [first, self._run([t[real_left:] for t in tails], False), self._run(rests, False)]
+        return [rx.emit_last(rx.back.trim(np.concatenate([p[i] for p in parts])))
                 for i, rx in enumerate(self.rxs)]
 
 
@@ -162,6 +136,15 @@ class Extractor:
     ParameterError
         Listing every channel that cannot be extracted (outside the capture
         band, filter over the band edge, too wide for the rate ...).
+
+    Examples
+    --------
+    >>> from iqsift import Extractor, open_capture                       # doctest: +SKIP
+    >>> with open_capture("sample_captures/vhf_airband.sigmf-meta") as capture:
+    ...     extractor = Extractor.from_plan(capture, "plan.toml")
+    ...     for audio_per_channel in extractor.stream(capture.blocks()):
+    ...         pass
+    >>> [r.channel["level_dbfs"] for r in extractor.results()]
     """
 
     def __init__(
@@ -180,54 +163,74 @@ class Extractor:
         time_offset_s: float = 0.0,
     ) -> None:
         if not channels:
-            raise ParameterError("no channels to extract")
+            raise ParameterError("channels: no channels to extract", parameters=("channels",))
         names = [c.name for c in channels]
         dupes = sorted({n for n in names if names.count(n) > 1})
         if dupes:
-            raise ParameterError(f"channel names must be unique; repeated: {', '.join(dupes)}")
+            raise ParameterError(f"channels: names must be unique; repeated: {', '.join(dupes)}",
+                                 parameters=("channels",))
         self.rate_hz = float(rate_hz)
         self.center_hz = center_hz
-        receivers, problems = [], []
-        taps = ("channel", "detector", "audio") if spectra else False
+        designs: list[ChannelDesign] = []
+        problems = []
         for ch in channels:
             try:
-                rx = Receiver(rate_hz, ch, center_hz=center_hz, real_input=real_input, engine="fft",
-                              ripple_db=ripple_db, atten_db=atten_db, agc=agc, spectra=taps, own_front=False)
+                designs.append(design_channel(rate_hz, ch, center_hz=center_hz, real_input=real_input, engine="fft",
+                                              ripple_db=ripple_db, atten_db=atten_db))
             except ParameterError as exc:
                 problems.append(str(exc))
-                continue
-            receivers.append(rx)
         if problems:
             raise ParameterError(f"{len(problems)} channel(s) refused before any work: " + "; ".join(problems))
-        self.receivers = receivers
-        self.bank = FastConvChannelizer(
-            rate_hz, [bank_channel(rx.design) for rx in receivers], real_input=real_input, workers=workers
-        )
-        for rx in receivers:
-            rx.design.fft_size = self.bank.fft_size
-            rx.design.fft_hop = self.bank.hop
-        self.mixers = [Mixer(rx.design.channel_rate_hz, self.bank.residual_hz(i)) for i, rx in enumerate(receivers)]
-        # channels with identical envelope chains run as one batch (one set of calls per block for all)
-        groups: dict = {}
-        for i, rx in enumerate(receivers):
-            key = _AmBatch.key(rx)
-            if key is not None:
-                groups.setdefault(key, []).append(i)
-        self.batches = [_AmBatch(members, receivers) for members in groups.values() if len(members) > 1]
-        batched = {i for b in self.batches for i in b.members}
-        self.singles = [i for i in range(len(receivers)) if i not in batched]
+        self.bank = FastConvChannelizer(rate_hz, [bank_channel(d) for d in designs], real_input=real_input,
+                                        workers=workers)
+        self.receivers = [Receiver.from_design(d.with_bank(self.bank.fft_size, self.bank.hop), center_hz=center_hz,
+                                               agc=agc) for d in designs]
+        self.mixers = [Mixer(rx.design.channel_rate_hz, self.bank.residual_hz(i)) for i, rx in enumerate(self.receivers)]
         self.input_spectrum = None
         if spectra:
             self.input_spectrum = input_tap(rate_hz, center_hz or 0.0, real_input)
-            for rx in receivers:
-                rx.taps["input"] = self.input_spectrum
+            for rx in self.receivers:
+                rx.taps = StageTaps(rx.design, center_hz, ("channel", "detector", "audio"))
+                rx.taps.attach(rx)
+                rx.taps.share_input(self.input_spectrum)
         if analyze:
-            for rx in receivers:
-                options = {}
+            for rx in self.receivers:
+                options: dict[str, Any] = {}
                 if rx.channel.squelch_db is not None:
                     options["activity"] = {"threshold_db": rx.channel.squelch_db}
                 rx.analyze(time_offset_s=time_offset_s, **options)
+        # channels with identical envelope chains run as one batch (one set of calls per block for all)
+        groups: dict[Hashable, list[int]] = {}
+        for i, rx in enumerate(self.receivers):
+            key = rx.back.batch_key()
+            if key is not None:
+                groups.setdefault(key, []).append(i)
+        self.batches = [_EnvelopeBatch(members, self.receivers) for members in groups.values() if len(members) > 1]
+        batched = {i for b in self.batches for i in b.members}
+        self.singles = [i for i in range(len(self.receivers)) if i not in batched]
         self.samples_in = 0
+
+    @classmethod
+    def from_plan(cls, capture: "Capture", plan: "ChannelPlan | str", *, selection: "SampleRange | None" = None,
+                  **options: Any) -> "Extractor":
+        """An extractor for every channel of a plan (a :class:`~iqsift.plan.ChannelPlan` or a TOML file)
+        in ``capture`` (over ``selection``: its centre, and activity times in capture time).
+
+        Raises
+        ------
+        ParameterError
+            Naming the capture file and every channel that cannot be extracted from it.
+        """
+        from .plan import load_plan
+
+        plan_obj = plan if isinstance(plan, ChannelPlan) else load_plan(plan)
+        centre = capture.center_for(selection)
+        options.setdefault("time_offset_s", (selection.start if selection is not None else 0) / capture.sample_rate_hz)
+        try:
+            return cls(capture.sample_rate_hz, channels_from_plan(plan_obj, centre), center_hz=centre,
+                       real_input=not capture.is_complex, **options)
+        except ParameterError as exc:
+            raise ParameterError(f"{capture.path}: {exc}", parameters=exc.parameters) from None
 
     @property
     def channels(self) -> list[Channel]:
@@ -241,9 +244,9 @@ class Extractor:
             self.input_spectrum.feed(block)
         outs = self.bank.process(block)
         baseband = [mixer.process(bb) for mixer, bb in zip(self.mixers, outs)]
-        audio: list = [None] * len(self.receivers)
+        audio: list[np.ndarray] = [np.zeros(0, np.float32)] * len(self.receivers)
         for rx in self.receivers:
-            rx.samples_in += block.shape[0]
+            rx.count_input(block.shape[0])
         for i in self.singles:
             audio[i] = self.receivers[i].process_baseband(baseband[i])
         for batch in self.batches:
@@ -258,7 +261,7 @@ class Extractor:
         flushed = self.bank.flush()
         tails = [mixer.process(t) for mixer, t in zip(self.mixers, tails)]
         flushed = [mixer.process(r) for mixer, r in zip(self.mixers, flushed)]
-        audio: list = [None] * len(self.receivers)
+        audio: list[np.ndarray] = [np.zeros(0, np.float32)] * len(self.receivers)
         for i in self.singles:
             audio[i] = self.receivers[i].finish_baseband(tails[i], flushed[i])
         for batch in self.batches:
@@ -267,12 +270,16 @@ class Extractor:
                 audio[i] = a
         return audio
 
-    def stream(self, blocks) -> Iterator[list[np.ndarray]]:
+    def stream(self, blocks: Iterable[np.ndarray]) -> Iterator[list[np.ndarray]]:
         """Run over IQ blocks, yielding per-channel audio lists; flushes at the end."""
         for block in blocks:
             yield self.process(block)
         yield self.flush()
 
-    def reports(self) -> list[dict[str, Any]]:
-        """Each channel's report (channel, design, level, delay, measurements)."""
+    def results(self) -> list[ReceiverReport]:
+        """Each channel's typed report (channel with level, design, delay, measurements), in channel order."""
         return [rx.report() for rx in self.receivers]
+
+    def spectra(self, scaling: str = "density") -> "list[dict[str, Spectrum]]":
+        """Each channel's accumulated stage spectra (empty dicts without ``spectra=True``)."""
+        return [rx.spectra(scaling) for rx in self.receivers]
