@@ -12,7 +12,7 @@ The public API, for scripts and test benches::
 
 __version__ = "0.1.0"
 
-from .measure import ChannelMeasurement, measure_channel  # noqa: E402
+from .jobs import ChannelMeasurement, measure_channel  # noqa: E402
 from .captures import Capture, SigMFWriter, AudioWriter, open_capture  # noqa: E402
 from .channel import Channel, make_channel  # noqa: E402
 from .emission import Emission, parse_emission  # noqa: E402

@@ -7,7 +7,7 @@ calls them directly::
     from iqsift.jobs import demod_file, extract_file
 
     result = demod_file("capture.sigmf-meta", make_channel(freq="124.1M", emission="6K00A3E"), "out.wav")
-    result.receiver["channel"]["level_dbfs"], result.to_dict()      # the JSON `iqsift demod --json` prints
+    result.receiver.channel["level_dbfs"], result.to_dict()      # the JSON `iqsift demod --json` prints
 
     report = extract_file("capture.sigmf-meta", "plan.toml", "out/")  # what `iqsift extract` writes
 
@@ -19,14 +19,16 @@ JSON Schema in ``iqsift/schemas/``) and ``iqsift_version``.
 from .common import CaptureSummary, SelectionSummary
 from .demod import DemodOutputs, DemodResult, demod_file
 from .design import DesignReport, design_report
-from .extract import ExtractResult, extract_file
+from .extract import ChannelResult, ExtractResult, extract_file
 from .info import InfoResult, info_file
-from .measure import WEIGHTINGS, MeasureResult, measure_file
+from .measure import WEIGHTINGS, ChannelMeasurement, MeasureResult, measure_channel, measure_file
 from .survey import SurveyReport, survey_file
 from .synth import SynthReport, synth_file
 
 __all__ = [
     "CaptureSummary",
+    "ChannelResult",
+    "ChannelMeasurement",
     "DemodOutputs",
     "DemodResult",
     "DesignReport",
@@ -41,6 +43,7 @@ __all__ = [
     "design_report",
     "extract_file",
     "info_file",
+    "measure_channel",
     "measure_file",
     "survey_file",
     "synth_file",

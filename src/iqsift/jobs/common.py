@@ -63,7 +63,7 @@ def opened(
         If reading options (``format``, ``rate``, ``center``) come with an already opened capture:
         they belong to :func:`~iqsift.captures.open_capture`.
     """
-    if isinstance(capture, Capture):
+    if not isinstance(capture, (str, os.PathLike)):  # an opened capture (or anything that reads like one)
         given = [name for name, value in (("format", format), ("rate", rate), ("center", center)) if value is not None]
         if given:
             raise ParameterError(f"{', '.join(given)}: only for a capture given by path; {capture.path} is already open")

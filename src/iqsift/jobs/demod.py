@@ -6,11 +6,11 @@ import os
 import time
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any, Mapping
+from typing import Any
 
 from ..captures import AudioWriter, OutputSet
 from ..channel import Channel
-from ..receiver import Receiver
+from ..receiver import Receiver, ReceiverReport
 from .common import (
     CaptureArg,
     CaptureSummary,
@@ -51,7 +51,7 @@ class DemodResult:
 
     Attributes
     ----------
-    receiver : Mapping
+    receiver : ReceiverReport
         The receiver's report: ``channel`` (with the measured ``level_dbfs``), ``design``,
         ``detector``, ``agc``, ``delay``, sample counts and the audio rate.
     capture : CaptureSummary
@@ -63,7 +63,7 @@ class DemodResult:
         Wall-clock time of the run up to the report (s).
     """
 
-    receiver: Mapping[str, Any]
+    receiver: ReceiverReport
     capture: CaptureSummary
     selection: SelectionSummary
     outputs: DemodOutputs
@@ -75,7 +75,7 @@ class DemodResult:
     def to_dict(self) -> dict[str, Any]:
         """The JSON ``iqsift demod --json`` prints and ``--report`` writes."""
         return stamped(self.schema, {
-            **self.receiver,
+            **self.receiver.to_dict(),
             "capture": self.capture.to_dict(),
             "selection": self.selection.to_dict(),
             "outputs": self.outputs.to_dict(),
@@ -172,7 +172,7 @@ def demod_file(
             audio_writer.close()
             if bb_writer is not None:
                 bb_writer.close()
-            rx_report = receiver.report().to_dict()
+            rx_report = receiver.report()
             elapsed_s = time.perf_counter() - started
             spectra_files = None
             if spectra_dir is not None:

@@ -13,6 +13,7 @@ from ..errors import ParameterError
 from ..extractor import Extractor
 from ..jsonable import dumps
 from ..plan import ChannelPlan, load_plan
+from ..receiver import ReceiverReport
 from .common import (
     CaptureArg,
     CaptureSummary,
@@ -26,7 +27,26 @@ from .common import (
     stamped,
 )
 
-__all__ = ["ExtractResult", "extract_file"]
+__all__ = ["ChannelResult", "ExtractResult", "extract_file"]
+
+
+@dataclass(frozen=True)
+class ChannelResult:
+    """One channel of an extraction: its report and the files written for it.
+
+    Attributes
+    ----------
+    report : ReceiverReport
+        Channel with level, design, delay and the measurement sections.
+    outputs : Mapping
+        ``audio`` (path), ``audio_clipped_samples``, and ``baseband`` and ``spectra`` when written.
+    """
+
+    report: ReceiverReport
+    outputs: Mapping[str, Any]
+
+    def to_dict(self) -> dict[str, Any]:
+        return {**self.report.to_dict(), "outputs": dict(self.outputs)}
 
 
 @dataclass(frozen=True)
@@ -43,7 +63,7 @@ class ExtractResult:
         ``fft_size``, ``hop`` and ``channels`` of the shared fast-convolution bank.
     processing_s : float
         Time spent streaming the capture through the bank and channels (s).
-    channels : tuple of Mapping
+    channels : tuple of ChannelResult
         Each channel's report (as ``demod`` gives it) with its ``outputs``.
     folder : str
         The output folder; ``report.json`` in it holds :meth:`to_dict`.
@@ -56,7 +76,7 @@ class ExtractResult:
     selection: SelectionSummary
     filter_bank: Mapping[str, Any]
     processing_s: float
-    channels: tuple[Mapping[str, Any], ...]
+    channels: tuple[ChannelResult, ...]
     folder: str
     elapsed_s: float
 
@@ -76,7 +96,7 @@ class ExtractResult:
             "filter_bank": dict(self.filter_bank),
             "processing_s": self.processing_s,
             "input_throughput_msps": count / self.processing_s / 1e6 if self.processing_s > 0 else None,
-            "channels": [dict(c) for c in self.channels],
+            "channels": [c.to_dict() for c in self.channels],
             "outputs": {"folder": self.folder, "report": self.report_path},
             "elapsed_s": self.elapsed_s,
         })
@@ -191,15 +211,16 @@ def _run(extractor: Extractor, cap: Capture, selection: SampleRange, folder: Pat
     blocks = cap.blocks(start=selection.start, count=selection.count, nonfinite=nonfinite)
     t0 = time.perf_counter()
     for audio_list in extractor.stream(counted(blocks, selection.count, progress)):
-        for writer, audio in zip(writers, audio_list):
+        for sink, audio in zip(writers, audio_list):
             if audio.size:
-                writer.write(audio)
+                sink.write(audio)
     processing_s = time.perf_counter() - t0
-    for closing in (*writers, *bb_writers):
-        closing.close()
+    for audio_writer in writers:
+        audio_writer.close()
+    for bb_writer in bb_writers:
+        bb_writer.close()
     channels = []
     for i, (rx, entry, audio_writer) in enumerate(zip(extractor.receivers, files, writers)):
-        report = rx.report().to_dict()
         entry["audio_clipped_samples"] = audio_writer.clipped_samples
         if spectra:
             from ..stage_plots import write_stage_plots
@@ -207,8 +228,7 @@ def _run(extractor: Extractor, cap: Capture, selection: SampleRange, folder: Pat
             entry["spectra"] = [str(p) for p in write_stage_plots(
                 rx, folder / "spectra" / _stem(rx), capture_name=cap.path.name, fmt=plot_format, outputs=outputs,
                 audio=keepers[i].audio())]
-        report["outputs"] = entry
-        channels.append(report)
+        channels.append(ChannelResult(rx.report(), entry))
     result = ExtractResult(
         capture=CaptureSummary.of(cap),
         plan=plan,

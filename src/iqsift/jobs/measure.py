@@ -3,11 +3,12 @@
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Any, Mapping
+from typing import Any
 
 from ..channel import Channel
-from ..measure import WEIGHTINGS
-from ..receiver import Receiver
+from ..measure import WEIGHTINGS, ActivitySegment
+from ..measure.sections import AudioQualitySummary, ChannelBandwidthResult, ModulationSummary, TunedCarrierResult
+from ..receiver import Receiver, ReceiverReport
 from .common import (
     CaptureArg,
     CaptureSummary,
@@ -19,7 +20,7 @@ from .common import (
     stamped,
 )
 
-__all__ = ["MeasureResult", "measure_file", "WEIGHTINGS"]
+__all__ = ["ChannelMeasurement", "MeasureResult", "WEIGHTINGS", "measure_channel", "measure_file"]
 
 
 @dataclass(frozen=True)
@@ -28,14 +29,14 @@ class MeasureResult:
 
     Attributes
     ----------
-    receiver : Mapping
-        The receiver's report with the measurement sections: ``carrier``, ``modulation``,
+    receiver : ReceiverReport
+        The receiver's report with its ``analysis``: ``carrier``, ``modulation``,
         ``bandwidth``, ``audio`` and ``activity`` (DESIGN.md report vocabulary).
     capture : CaptureSummary
     selection : SelectionSummary
     """
 
-    receiver: Mapping[str, Any]
+    receiver: ReceiverReport
     capture: CaptureSummary
     selection: SelectionSummary
 
@@ -43,7 +44,7 @@ class MeasureResult:
 
     def to_dict(self) -> dict[str, Any]:
         """The JSON ``iqsift measure --json`` prints."""
-        return stamped(self.schema, {**self.receiver, "capture": self.capture.to_dict(),
+        return stamped(self.schema, {**self.receiver.to_dict(), "capture": self.capture.to_dict(),
                                      "selection": self.selection.to_dict()})
 
 
@@ -92,5 +93,90 @@ def measure_file(
                             nonfinite=nonfinite_policy(allow_nonfinite))
         for _ in receiver.stream(counted(blocks, selection.count, progress)):
             pass
-        return MeasureResult(receiver.report().to_dict(), CaptureSummary.of(cap),
+        return MeasureResult(receiver.report(), CaptureSummary.of(cap),
                              SelectionSummary.of(cap, selection))
+
+
+@dataclass(frozen=True)
+class ChannelMeasurement:
+    """The result of :func:`measure_channel`: one attribute per report section (DESIGN.md vocabulary).
+
+    The sections are the typed results of :class:`~iqsift.measure.AnalysisResult`; each also reads
+    like its JSON section (``m.carrier["error_hz"]``). A section is None (activity: empty) only when
+    nothing was there or it was not measured; ``report["<section>_reason"]`` says which.
+
+    Attributes
+    ----------
+    channel : dict
+        ``name``, ``frequency_hz``, ``bandwidth_hz``, ``mode``, ``level_dbfs`` ...
+    carrier : TunedCarrierResult or None
+        ``frequency_hz``, ``error_hz`` (measured − nominal), ``level_dbfs``; None for suppressed-carrier modes.
+    modulation : ModulationSummary or None
+        ``depth_percent``, ``depth_positive_percent``, ``depth_negative_percent``, ``tone_hz`` (AM only).
+    bandwidth : ChannelBandwidthResult or None
+        ``occupied_hz`` (99 %, ITU-R SM.328), ``x_db_hz`` with ``x_db``.
+    audio : AudioQualitySummary or None
+        ``snr_db``, ``sinad_db``, ``thd_percent``, ``receiver_sinad_db`` (with a test tone only).
+    activity : tuple of ActivitySegment
+        ``start_s``, ``end_s`` (capture time), ``level_dbfs`` per segment.
+    report : dict
+        The whole report (design, delay, ... as well).
+    """
+
+    channel: dict
+    carrier: TunedCarrierResult | None
+    modulation: ModulationSummary | None
+    bandwidth: ChannelBandwidthResult | None
+    audio: AudioQualitySummary | None
+    activity: tuple[ActivitySegment, ...]
+    report: dict
+
+    def to_dict(self) -> dict[str, Any]:
+        """The JSON report."""
+        return self.report
+
+
+def measure_channel(
+    capture: Any,
+    channel: Any,
+    *,
+    tone_hz: float | None = None,
+    weighting: str = "none",
+    x_db: float = 26.0,
+    threshold_db: float = 10.0,
+    start: Any = None,
+    duration: Any = None,
+    nonfinite: str = "error",
+) -> ChannelMeasurement:
+    """Measure one channel of a capture in one streaming pass (the library form of ``iqsift measure``).
+
+    Parameters
+    ----------
+    capture : path or Capture
+        The capture (see :func:`measure_file`).
+    channel : Channel
+        From :func:`iqsift.make_channel`.
+    tone_hz : float, optional
+        Test-tone frequency (Hz) for SNR/SINAD/THD (IEEE Std 1241); inside the channel's audio band.
+    weighting : {"none", "psophometric", "a"}
+        Noise weighting (ITU-T O.41, IEC 61672-1).
+    x_db : float
+        x of the x-dB bandwidth (dB), > 0.
+    threshold_db : float
+        Activity threshold above the noise floor (dB).
+    start, duration : seconds or str, optional
+        The window to analyse (see :meth:`Capture.select`).
+
+    Raises
+    ------
+    ParameterError
+        Before any sample is read, for a bad parameter (see :class:`~iqsift.measure.ChannelAnalyzer`).
+    """
+    result = measure_file(capture, channel, tone_hz=tone_hz, weighting=weighting, x_db=x_db,
+                          threshold_db=threshold_db, start=start, duration=duration,
+                          allow_nonfinite=nonfinite == "zero")
+    report = result.receiver
+    analysis = report.analysis
+    assert analysis is not None  # measure_file analyses
+    return ChannelMeasurement(dict(report.channel), analysis.carrier, analysis.modulation, analysis.bandwidth,
+                              analysis.audio, analysis.activity, report.to_dict())

@@ -8,7 +8,7 @@ from typing import Any, Iterable, Iterator
 
 import numpy as np
 
-from ..captures import Capture, OutputSet, input_files
+from ..captures import OutputSet, input_files
 from ..errors import ParameterError
 from ..rasters import Raster, parse_raster
 from ..survey import DEFAULT_THRESHOLD_DB, SurveyResult, survey_capture, survey_plan_text
@@ -89,7 +89,7 @@ def survey_file(
         As for :func:`demod_file`.
     """
     raster_obj = parse_raster(raster) if isinstance(raster, str) else raster
-    protect = capture.files if isinstance(capture, Capture) else input_files(capture)
+    protect = input_files(capture) if isinstance(capture, (str, os.PathLike)) else capture.files
     with OutputSet(force=force, protect=protect) as outputs:
         plan_tmp = outputs.reserve(plan_out) if plan_out else None  # checked before any work
         with opened(capture, format=format, rate=rate, center=center, strict=strict) as cap:

@@ -6,7 +6,7 @@ gives the stable report keys of the design notes (``carrier.*``, ``modulation.*`
 accumulators cover captures too long to hold in memory: :class:`CarrierAccumulator` and
 :class:`ActivityTracker`. :class:`ChannelAnalyzer` runs them all on a receiver's channel while it
 streams and returns an :class:`AnalysisResult`, whose empty sections say why they are empty
-(:mod:`iqsift.measure.sections`); :func:`measure_channel` is the whole ``iqsift measure`` in one call.
+(:mod:`iqsift.measure.sections`); :func:`iqsift.jobs.measure_channel` is the whole ``iqsift measure`` in one call.
 
 Modules, one measurement each
 -----------------------------
@@ -26,7 +26,6 @@ from .analyzer import ChannelAnalyzer
 from .audio import AudioQualityResult, audio_quality
 from .bandwidth import BandwidthResult, measure_bandwidth, occupied_bandwidth, x_db_bandwidth
 from .carrier import CarrierAccumulator, CarrierResult, estimate_carrier
-from .channel import ChannelMeasurement, measure_channel
 from .modulation import ModulationResult, measure_depth, sideband_levels_dbc
 from .results import Reportable
 from .sections import (
@@ -70,6 +69,4 @@ __all__ = [
     "ModulationSummary",
     "ChannelBandwidthResult",
     "AudioQualitySummary",
-    "ChannelMeasurement",
-    "measure_channel",
 ]

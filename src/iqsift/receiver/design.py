@@ -93,18 +93,34 @@ class ChannelDesign:
         lo, hi = self.channel.passband_hz
         return 0.5 * (hi - lo)
 
+    @property
+    def fft_prototype(self) -> LowpassDesign:
+        """The fast-convolution engine's prototype filter."""
+        if self.prototype is None:
+            raise ParameterError(f"engine: a {self.engine} design has no fast-convolution prototype",
+                                 parameters=("engine",))
+        return self.prototype
+
+    @property
+    def plan(self) -> DecimationPlan:
+        """The time-domain engine's decimation stages."""
+        if self.polyphase_plan is None:
+            raise ParameterError(f"engine: a {self.engine} design has no decimation plan", parameters=("engine",))
+        return self.polyphase_plan
+
     def front_end_delay_s(self) -> float:
         """Group delay of the front end (s)."""
         if self.engine == "fft":
-            return self.prototype.group_delay_s
-        return sum(stage.lowpass.group_delay_s for stage in self.polyphase_plan.stages)
+            return self.fft_prototype.group_delay_s
+        return float(sum(stage.lowpass.group_delay_s for stage in self.plan.stages))
 
     def stages(self) -> list[dict[str, Any]]:
         """The chain as a list of stage descriptions (for reports and ``iqsift design``)."""
         lo, hi = self.channel.passband_hz
         out: list[dict[str, Any]] = []
         if self.engine == "fft":
-            p = self.prototype
+            p = self.fft_prototype
+            assert self.fft_size is not None and self.fft_hop is not None, "a fast-convolution design has its bank"
             n, hop = self.fft_size, self.fft_hop
             # cost estimate: complex FFT ~ 5 N log2 N real flops (Cooley-Tukey count), half of them multiply-adds
             fwd = 2.5 * n * math.log2(n) / hop
@@ -126,7 +142,7 @@ class ChannelDesign:
                 "macs_per_chain_input_sample": fwd + inv,
             })
         else:
-            for stage in self.polyphase_plan.stages:
+            for stage in self.plan.stages:
                 entry = stage.to_dict()
                 del entry["lowpass"]
                 entry["name"] = f"FIR decimator /{stage.down}" + (" (translating)" if stage.index == 0 else "")

@@ -28,10 +28,8 @@ class PolyphaseFrontEnd(Stage):
     """Translating FIR decimator + FIR decimation stages + a mixer putting the carrier at 0 Hz."""
 
     def __init__(self, design: ChannelDesign) -> None:
-        plan = design.polyphase_plan
-        assert plan is not None, "a polyphase design has a decimation plan"
         stages = []
-        for stage in plan.stages:
+        for stage in design.plan.stages:
             gain = 2.0 if (stage.index == 0 and design.real_input) else 1.0
             translate = design.filter_centre_hz if stage.index == 0 else None
             stages.append(FirDecimator(stage.lowpass.taps * gain, stage.down, stage.rate_in_hz, translate_hz=translate))
@@ -112,8 +110,8 @@ class FftFrontEnd(Stage):
 
 def bank_channel(design: ChannelDesign) -> BankChannel:
     """The filter-bank entry for a designed channel."""
-    assert design.prototype is not None, "the fast-convolution engine has a prototype filter"
-    return BankChannel(design.carrier_offset_hz, design.channel.passband_hz, design.prototype.taps, design.decimation)
+    return BankChannel(design.carrier_offset_hz, design.channel.passband_hz, design.fft_prototype.taps,
+                       design.decimation)
 
 
 def front_end_for(design: ChannelDesign, workers: int | None = None) -> Stage:

@@ -137,6 +137,11 @@ class Receiver:
     >>> result.audio.shape, result.report.channel["level_dbfs"]
     """
 
+    taps: StageTaps | None
+    """The spectrum accumulators at the tap points, when spectra were asked for."""
+    analyzer: "ChannelAnalyzer | None"
+    """The measurement analyzer, after :meth:`analyze`."""
+
     def __init__(
         self,
         rate_hz: float,
@@ -157,8 +162,9 @@ class Receiver:
         self._build(design, center_hz, front_end_for(design, workers), agc, detector_options)
         if spectra:
             names = (*TAP_NAMES, "stages") if spectra is True else tuple(spectra)  # type: ignore[arg-type]
-            self.taps = StageTaps(design, center_hz, names)
-            self.taps.attach(self)
+            taps = StageTaps(design, center_hz, names)
+            taps.attach(self)
+            self.taps = taps
 
     @classmethod
     def from_design(cls, design: ChannelDesign, *, center_hz: float | None = None, front: Stage | None = None,
@@ -178,8 +184,8 @@ class Receiver:
         self.front = front
         self.back = ChannelBackEnd(design, design.front_end_delay_s(), agc=agc, detector_options=detector_options)
         self.audio_rate_hz = self.back.audio_rate_hz
-        self.taps: StageTaps | None = None
-        self.analyzer: ChannelAnalyzer | None = None
+        self.taps = None
+        self.analyzer = None
         self._input_tap = TapPoint(self.rate_hz)
         self._audio_tap = TapPoint(self.audio_rate_hz)
         # mute the audio while the channel holds only noise (Channel.squelch_db dB above the floor)
