@@ -9,9 +9,9 @@ an extra channel small. A single channel is simply one row.
 from __future__ import annotations
 
 import numpy as np
-from numpy.typing import ArrayLike
 import scipy.fft as sfft
 from numpy.lib.stride_tricks import sliding_window_view
+from numpy.typing import ArrayLike
 
 from .stages import Stage
 

@@ -74,8 +74,10 @@ class CarrierNormaliser(Stage):
         check_carrier: bool = True,
         rows: int = 1,
     ) -> None:
-        self._args: dict[str, Any] = dict(rate_hz=rate_hz, pass_hz=pass_hz, stop_hz=stop_hz, atten_db=atten_db, floor=floor,
-                          normalise=normalise, max_gain_db=max_gain_db, check_carrier=check_carrier)
+        self._args: dict[str, Any] = dict(
+            rate_hz=rate_hz, pass_hz=pass_hz, stop_hz=stop_hz, atten_db=atten_db, floor=floor,
+            normalise=normalise, max_gain_db=max_gain_db, check_carrier=check_carrier,
+        )
         stop_hz = min(stop_hz, 0.45 * rate_hz)
         pass_hz = min(pass_hz, 0.5 * stop_hz)
         self.design = design_lowpass(rate_hz, pass_hz, stop_hz, ripple_db=0.5, atten_db=atten_db, method="kaiser")

@@ -6,8 +6,8 @@ import math
 from typing import Any
 
 import numpy as np
-from numpy.typing import ArrayLike
 import scipy.signal as ssig
+from numpy.typing import ArrayLike
 
 from ... import checks
 from ...errors import ParameterError

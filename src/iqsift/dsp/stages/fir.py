@@ -10,10 +10,10 @@ from __future__ import annotations
 from fractions import Fraction
 
 import numpy as np
-from numpy.typing import ArrayLike
 import scipy.fft as sfft
 import scipy.signal as ssig
 from numpy.lib.stride_tricks import sliding_window_view
+from numpy.typing import ArrayLike
 
 from ... import checks
 from ...errors import ParameterError
@@ -330,7 +330,9 @@ class FirDecimator(Stage):
         return self._out(y)
 
 
-def fir_decimate(x: ArrayLike, taps: ArrayLike, down: int, rate_in_hz: float = 1.0, translate_hz: float | None = None) -> np.ndarray:
+def fir_decimate(
+    x: ArrayLike, taps: ArrayLike, down: int, rate_in_hz: float = 1.0, translate_hz: float | None = None
+) -> np.ndarray:
     """One-shot :class:`FirDecimator`."""
     return run_once(FirDecimator(taps, down, rate_in_hz, translate_hz), x)
 
