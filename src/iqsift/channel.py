@@ -143,6 +143,8 @@ class Channel:
         """Carrier offset from the capture centre (Hz); absolute frequencies need a known centre."""
         if self.offset_hz is not None:
             return self.offset_hz
+        # __post_init__ holds exactly one of frequency and offset
+        assert self.frequency_hz is not None
         if center_hz is None:
             # no centre known: DESIGN.md says user frequencies are then offsets
             return float(self.frequency_hz)
@@ -150,7 +152,7 @@ class Channel:
 
     def absolute_frequency(self, center_hz: float | None) -> float | None:
         """Absolute carrier frequency (Hz), when the capture centre is known."""
-        if self.frequency_hz is not None:
+        if self.offset_hz is None:  # given as an absolute frequency (exactly one of the two is set)
             return self.frequency_hz if center_hz is not None else None
         return None if center_hz is None else center_hz + self.offset_hz
 

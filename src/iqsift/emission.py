@@ -50,7 +50,7 @@ import math
 import re
 from dataclasses import asdict, dataclass
 from decimal import ROUND_HALF_UP, Decimal, InvalidOperation
-from typing import Sequence
+from typing import Any, Sequence
 
 from .modes import MODES
 from .errors import ParameterError
@@ -428,7 +428,7 @@ def parse_emission_class(emission_class: str, mode: str | None = None) -> Emissi
     return _parse_class(text, text, None, mode)
 
 
-def _positive_finite(value: float, name: str) -> float:
+def _positive_finite(value: Any, name: str) -> float:
     if isinstance(value, bool):
         raise ParameterError(f"{name}: expected a number of Hz, got {value!r}")
     try:
@@ -511,7 +511,7 @@ def necessary_bandwidth(
 
     if cls == "B8E":
         if isinstance(highest_mod_hz, (str, bytes)) or not isinstance(highest_mod_hz, Sequence):
-            sidebands = [_positive_finite(highest_mod_hz, "highest modulating frequency")] * 2  # type: ignore[arg-type]
+            sidebands = [_positive_finite(highest_mod_hz, "highest modulating frequency")] * 2
         else:
             if len(highest_mod_hz) < 1:
                 raise ParameterError("highest modulating frequency: B8E needs M of at least one sideband")
@@ -520,7 +520,7 @@ def necessary_bandwidth(
 
     if isinstance(highest_mod_hz, Sequence) and not isinstance(highest_mod_hz, (str, bytes)):
         raise ParameterError(f"highest modulating frequency: one value for class {cls}, got {highest_mod_hz!r}")
-    m = _positive_finite(highest_mod_hz, "highest modulating frequency")  # type: ignore[arg-type]
+    m = _positive_finite(highest_mod_hz, "highest modulating frequency")
     if cls == "A3E":
         return 2.0 * m
     if cls in ("H3E", "R3E"):

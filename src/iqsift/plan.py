@@ -534,6 +534,7 @@ def _read_channel(source: str, index: int, entry: Any, defaults: _Defaults) -> P
             "audio_low",
         )
 
+    squelch: float | None
     if "squelch_db" in entry:
         squelch = _squelch(where, entry["squelch_db"])
     else:
@@ -624,10 +625,11 @@ def parse_plan(text: str | bytes, source: str = "<string>") -> ChannelPlan:
     """
     src = _clean_source(source)
     if isinstance(text, (bytes, bytearray)):
+        raw = bytes(text)
         try:
-            text = bytes(text).decode("utf-8")
+            text = raw.decode("utf-8")
         except UnicodeDecodeError as exc:
-            line = bytes(text)[: exc.start].count(b"\n") + 1
+            line = raw[: exc.start].count(b"\n") + 1
             raise ParameterError(f"{src}: line {line}: not UTF-8 text (TOML files are UTF-8)") from None
     if not isinstance(text, str):
         raise ParameterError(f"{src}: expected TOML text, got {_echo(text)}")

@@ -35,13 +35,19 @@ import math
 import os
 import sys
 from pathlib import Path
-from typing import Any, Mapping, Sequence
+from types import ModuleType
+from typing import TYPE_CHECKING, Any, Mapping, Sequence
 
 import numpy as np
+from numpy.typing import ArrayLike
 
+from .captures.atomic import write_atomically
 from .errors import ParameterError
-from .spectra import Spectrum, SpectrogramResult, _atomic_write
+from .spectra import Spectrum, SpectrogramResult
 from .units import format_hz
+
+if TYPE_CHECKING:  # matplotlib itself is imported lazily, in _matplotlib()
+    from matplotlib.figure import Figure
 
 __all__ = [
     "PALETTE",
@@ -98,7 +104,7 @@ _RC = {
 # ----------------------------------------------------------------------------- helpers
 
 
-def _matplotlib():
+def _matplotlib() -> tuple[ModuleType, type[Figure]]:
     """Import matplotlib for off-screen drawing; returns (matplotlib, Figure)."""
     import matplotlib
 
@@ -128,7 +134,7 @@ def _save(fig: Any, path: str | os.PathLike, fmt: str, force: bool) -> Path:
     def write(fh: Any) -> None:
         fig.savefig(fh, format=fmt, dpi=_DPI)
 
-    return _atomic_write(path, write, binary=True, force=force)
+    return write_atomically(path, write, binary=True, force=force)
 
 
 def db_range(
@@ -233,7 +239,7 @@ def _draw_spectrum(ax: Any, spectrum: Spectrum, *, overlay: Mapping[str, Any] | 
             raise ParameterError(f"filter_overlay: unknown keys {sorted(unknown)}; use passband_hz, stopband_hz, response, label")
         if overlay.get("passband_hz") is not None:
             lo, hi = _pair(overlay["passband_hz"], "filter_overlay passband_hz", spectrum.onesided)
-            label = "passband edge"
+            label: str | None = "passband edge"
             for edge in (lo, hi):
                 if spectrum.onesided and edge <= 0:
                     continue  # one-sided: no edge at or below DC
@@ -299,7 +305,13 @@ def _panel_info(s: Spectrum) -> str:
 # ----------------------------------------------------------------------------- spectra
 
 
-def _build_stage_figure(spectrum: Spectrum, *, title: str, filter_overlay=None, channel_band=None):
+def _build_stage_figure(
+    spectrum: Spectrum,
+    *,
+    title: str,
+    filter_overlay: Mapping[str, Any] | None = None,
+    channel_band: tuple[float, float] | float | None = None,
+) -> Figure:
     mpl, Figure = _matplotlib()
     spectrum = _check_spectrum(spectrum)
     with mpl.rc_context(_RC):
@@ -374,7 +386,9 @@ def _per_panel(value: Any, spectra: Sequence[Spectrum], name: str, single_types:
     return items
 
 
-def _build_overview_figure(spectra: Sequence[Spectrum], *, title: str, overlays=None, channel_band=None):
+def _build_overview_figure(
+    spectra: Sequence[Spectrum], *, title: str, overlays: Any = None, channel_band: Any = None
+) -> tuple[Figure, list[Any]]:
     mpl, Figure = _matplotlib()
     spectra = [_check_spectrum(s) for s in spectra]
     if not spectra:
@@ -443,7 +457,10 @@ def _edges(centres: np.ndarray, fallback: float) -> np.ndarray:
     return np.concatenate([[2 * centres[0] - mid[0]], mid, [2 * centres[-1] - mid[-1]]])
 
 
-def _build_spectrogram_figure(times, freqs, power_db, *, title, units="dBFS/Hz", center_hz=0.0):
+def _build_spectrogram_figure(
+    times: ArrayLike, freqs: ArrayLike, power_db: ArrayLike, *, title: str, units: str = "dBFS/Hz",
+    center_hz: float = 0.0
+) -> Figure:
     mpl, Figure = _matplotlib()
     t = np.asarray(times, dtype=np.float64)
     f = np.asarray(freqs, dtype=np.float64)
@@ -472,9 +489,9 @@ def _build_spectrogram_figure(times, freqs, power_db, *, title, units="dBFS/Hz",
 
 
 def plot_spectrogram(
-    times: Any,
-    freqs: Any,
-    power_db: Any,
+    times: ArrayLike,
+    freqs: ArrayLike,
+    power_db: ArrayLike,
     path: str | os.PathLike,
     *,
     title: str,
@@ -536,7 +553,7 @@ def _sliding_mean_square(sums: np.ndarray, counts: np.ndarray, width: int) -> np
     return np.maximum(cs[hi] - cs[lo], 0.0) / (cc[hi] - cc[lo])
 
 
-def _build_waveform_figure(audio, rate_hz, *, title):
+def _build_waveform_figure(audio: ArrayLike, rate_hz: float, *, title: str) -> Figure:
     mpl, Figure = _matplotlib()
     x = np.asarray(audio)
     if x.ndim != 1 or x.size == 0 or x.dtype.kind not in "biuf":
@@ -594,7 +611,7 @@ def _build_waveform_figure(audio, rate_hz, *, title):
 
 
 def plot_waveform(
-    audio: Any, rate_hz: float, path: str | os.PathLike, *, title: str, fmt: str = "png", force: bool = True
+    audio: ArrayLike, rate_hz: float, path: str | os.PathLike, *, title: str, fmt: str = "png", force: bool = True
 ) -> Path:
     """Audio waveform (top) and short-term level in dBFS (bottom) against time in seconds.
 
@@ -665,7 +682,7 @@ def save_plot_data(obj: Any, path: str | os.PathLike, *, force: bool = True) -> 
             fh.write(text)
             fh.write("\n")
 
-        return _atomic_write(path, write, binary=False, force=force)
+        return write_atomically(path, write, binary=False, force=force)
     if suffix == ".csv":
         if isinstance(obj, Spectrum):
             return obj.to_csv(path, force=force)
@@ -681,5 +698,5 @@ def save_plot_data(obj: Any, path: str | os.PathLike, *, force: bool = True) -> 
         for row in zip(*(c.tolist() for c in cols.values())):
             w.writerow([f"{v:.15g}" if isinstance(v, float) else v for v in row])
         text = buf.getvalue()
-        return _atomic_write(path, lambda fh: fh.write(text), binary=False, force=force)
+        return write_atomically(path, lambda fh: fh.write(text), binary=False, force=force)
     raise ParameterError(f"{path}: plot data is written as .json or .csv, got suffix {suffix or '(none)'!r}")

@@ -531,16 +531,15 @@ class WelchAccumulator:
         Complex blocks give a two-sided spectrum, real blocks a one-sided one
         (see ``onesided``); all blocks of a run must agree.
         """
+        limit: int | None = None
         if self._max_segments is not None:
-            limit: int | None = self._max_segments - self._count
+            limit = self._max_segments - self._count
             if limit <= 0:
                 x = np.asarray(block)
                 if x.ndim != 1:
                     raise ParameterError(f"block: must be a 1-D array of samples, got shape {x.shape}")
                 self._stream._samples += x.size
                 return self
-        else:
-            limit = None
         for rows in self._stream.periodograms(block, limit):
             part = rows.sum(axis=0)
             if self._sum is None:
@@ -747,6 +746,7 @@ class SpectrogramAccumulator:
         raw = self._cols[: self._ncols]
         counts = [self._per_col] * self._ncols
         if self._pending_count:
+            assert self._pending is not None  # allocated together with the columns
             raw = np.vstack([raw, self._pending[None, :] / self._pending_count])
             counts.append(self._pending_count)
         freqs, power = self._stream._finish(raw, self._scaling)

@@ -115,6 +115,13 @@ class TimeSpec:
         assert self.seconds is not None
         return int(round(self.seconds * sample_rate_hz))
 
+    def to_seconds(self, sample_rate_hz: float) -> float:
+        """The time in seconds, a sample count taken at ``sample_rate_hz`` (samples/s)."""
+        if self.seconds is not None:
+            return self.seconds
+        assert self.samples is not None
+        return self.samples / sample_rate_hz
+
 
 _TIME_RE = re.compile(rf"^\s*({_NUMBER})\s*(s|ms|us|sa|samples?|)\s*$", re.IGNORECASE)
 

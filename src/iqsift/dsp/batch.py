@@ -11,6 +11,7 @@ from __future__ import annotations
 import numpy as np
 import scipy.fft as sfft
 from numpy.lib.stride_tricks import sliding_window_view
+from numpy.typing import ArrayLike
 
 from .stages import Stage
 
@@ -73,7 +74,7 @@ class BatchFir(Stage):
     def reset(self) -> None:
         self.state = np.zeros((self.rows, self.m), np.float32)
 
-    def process(self, x: np.ndarray) -> np.ndarray:
+    def process(self, x: ArrayLike) -> np.ndarray:
         """Filter a (rows × n) block, or a 1-D block when there is one row; float32 out, same shape."""
         x = np.asarray(x, dtype=np.float32)
         flat = x.ndim == 1

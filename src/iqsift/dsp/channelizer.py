@@ -241,8 +241,8 @@ class FastConvChannelizer:
         for k, members in groups.items():
             idx = np.stack([index_rows[c] for c in members])
             filt = np.stack([filter_rows[c] for c in members])
-            k0 = np.array([self._k0[c] for c in members], dtype=np.int64)
-            self._groups.append((k, members, idx, filt, k0))
+            group_k0 = np.array([self._k0[c] for c in members], dtype=np.int64)
+            self._groups.append((k, members, idx, filt, group_k0))
 
     @property
     def rate_in(self) -> float:

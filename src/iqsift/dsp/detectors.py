@@ -52,8 +52,11 @@ from __future__ import annotations
 
 import inspect
 import math
+from collections.abc import Mapping
+from typing import Any
 
 import numpy as np
+from numpy.typing import ArrayLike
 from scipy import fft as sfft
 from scipy import signal
 
@@ -79,7 +82,7 @@ _TWO_PI = 2.0 * math.pi
 
 
 # ----------------------------------------------------------------------------- validation
-def _as_block(block) -> np.ndarray:
+def _as_block(block: ArrayLike) -> np.ndarray:
     x = np.asarray(block)
     if x.ndim != 1:
         raise ParameterError(f"block: got an array of shape {x.shape}; a detector takes a 1-D array of samples")
@@ -111,7 +114,7 @@ class _Detector(Stage):
         self._finished = False
         self._reset_state()
 
-    def _start(self, block) -> np.ndarray:
+    def _start(self, block: ArrayLike) -> np.ndarray:
         x = _as_block(block)
         if self._finished:  # a new stream after flush()
             self.reset()
@@ -148,7 +151,7 @@ class EnvelopeDetector(_Detector):
     def _reset_state(self) -> None:
         pass
 
-    def process(self, block) -> np.ndarray:
+    def process(self, block: ArrayLike) -> np.ndarray:
         """Return ``|block|`` as float32 (same length as ``block``)."""
         x = self._start(block)
         return np.abs(x).astype(np.float32)
@@ -210,6 +213,7 @@ class SidebandDetector(_Detector):
         self.sideband = side
         self.mode = side
         self.sideband_filter = bool(sideband_filter)
+        self._taps: np.ndarray | None
         if self.sideband_filter:
             self._taps = sideband_bandpass_taps(rate_hz, side, low_hz, high_hz, transition_hz, atten_db)
             self._delay = (len(self._taps) - 1) // 2
@@ -232,7 +236,7 @@ class SidebandDetector(_Detector):
         y, self._zi = signal.lfilter(self._taps, [1.0], x, zi=self._zi)
         return y
 
-    def process(self, block) -> np.ndarray:
+    def process(self, block: ArrayLike) -> np.ndarray:
         """Return ``Re(z)`` (after the band-pass, if any) for ``block``, float32, same length."""
         x = self._start(block)
         if x.size == 0:
@@ -441,7 +445,7 @@ class _CarrierTracker(_Detector):
                 self._buf_start = keep
         return outs
 
-    def process(self, block) -> np.ndarray:
+    def process(self, block: ArrayLike) -> np.ndarray:
         """Feed ``block`` (complex baseband); return the float32 output that is ready (may be shorter)."""
         x = self._start(block)
         if x.size:
@@ -617,7 +621,7 @@ _CLASSES = {
 }
 
 
-def make_detector(mode: str, rate_hz: float, **options) -> _Detector:
+def make_detector(mode: str, rate_hz: float, **options: Any) -> _Detector:
     """Build the detector for ``mode`` at the channel rate ``rate_hz`` (Hz).
 
     Parameters
@@ -639,7 +643,7 @@ def make_detector(mode: str, rate_hz: float, **options) -> _Detector:
     cls = _CLASSES.get(key)
     if cls is None:
         raise ParameterError(f"mode: got {mode!r}; it must be one of {', '.join(DETECTOR_MODES)}")
-    params = inspect.signature(cls.__init__).parameters
+    params: Mapping[str, inspect.Parameter] = inspect.signature(cls).parameters
     if cls is SidebandDetector:
         params = {k: v for k, v in params.items() if k != "sideband"}
     allowed = [name for name in params if name not in ("self", "rate_hz")]
@@ -653,7 +657,7 @@ def make_detector(mode: str, rate_hz: float, **options) -> _Detector:
     return cls(rate_hz, **options)
 
 
-def detect(iq, mode: str, rate_hz: float, **options) -> np.ndarray:
+def detect(iq: ArrayLike, mode: str, rate_hz: float, **options: Any) -> np.ndarray:
     """One-shot detection: run the ``mode`` detector over ``iq`` and return ``len(iq)`` aligned samples.
 
     ``delay`` zeros are appended to push the detection of the last samples

@@ -9,7 +9,10 @@ here with a linear-phase low-pass instead of a feedback loop.
 
 from __future__ import annotations
 
+from typing import Any
+
 import numpy as np
+from numpy.typing import ArrayLike
 
 from .batch import BatchFir, long_fft_size
 from .filters import design_lowpass, fractional_delay_taps
@@ -76,9 +79,11 @@ class CarrierNormaliser(Stage):
         settle_samples: int = 0,
         rows: int = 1,
     ) -> None:
-        self._settings = dict(rate_hz=rate_hz, pass_hz=pass_hz, stop_hz=stop_hz, atten_db=atten_db, floor=floor,
-                              normalise=normalise, max_gain_db=max_gain_db, check_carrier=check_carrier,
-                              settle_samples=int(settle_samples))
+        self._settings: dict[str, Any] = dict(
+            rate_hz=rate_hz, pass_hz=pass_hz, stop_hz=stop_hz, atten_db=atten_db, floor=floor,
+            normalise=normalise, max_gain_db=max_gain_db, check_carrier=check_carrier,
+            settle_samples=int(settle_samples),
+        )
         self.settle_samples = int(settle_samples)
         stop_hz = min(stop_hz, 0.45 * rate_hz)
         pass_hz = min(pass_hz, 0.5 * stop_hz)
@@ -98,13 +103,13 @@ class CarrierNormaliser(Stage):
         self.reset()
 
     @property
-    def settings(self) -> dict[str, float | bool | int]:
+    def settings(self) -> dict[str, Any]:
         """The parameters this normaliser was built with (equal settings: identical processing)."""
         return dict(self._settings)
 
     def for_rows(self, rows: int) -> "CarrierNormaliser":
         """The same normaliser for ``rows`` channels processed together."""
-        return CarrierNormaliser(rows=rows, **self._settings)  # type: ignore[arg-type]
+        return CarrierNormaliser(rows=rows, **self._settings)
 
     def signal_ends(self, samples_in: int) -> None:
         """Input from sample ``samples_in`` on is padding: leave it out of the carrier level."""
@@ -132,7 +137,7 @@ class CarrierNormaliser(Stage):
         self._run = 0  # consecutive valid samples fed most recently
         self._cover_stale = False
         self._history = np.zeros((self.rows, self._lag), np.float32)
-        self.last_level = None
+        self.last_level: float | None = None
         self._strongest = np.zeros((self.rows, 1), np.float32)
 
     def _coverage(self, n: int, valid: np.ndarray | None) -> np.ndarray | None:
@@ -154,7 +159,7 @@ class CarrierNormaliser(Stage):
         self._run = n - 1 - int(last_invalid[-1]) if last_invalid.size else self._run + n
         return np.asarray(self._cover.process(v), dtype=np.float32)
 
-    def process(self, block: np.ndarray, valid: np.ndarray | None = None) -> np.ndarray:
+    def process(self, block: ArrayLike, valid: np.ndarray | None = None) -> np.ndarray:
         """Process a block (1-D, or rows × n); ``valid`` marks the samples that carry signal (default: all).
 
         The level is a normalised convolution (Knutsson & Westin 1993):
@@ -237,7 +242,8 @@ class DelayTrim(Stage):
     def reset(self) -> None:
         self._left = self.count
 
-    def process(self, block: np.ndarray) -> np.ndarray:
+    def process(self, block: ArrayLike) -> np.ndarray:
+        block = np.asarray(block)
         if self._left <= 0:
             return block
         drop = min(self._left, block.shape[0])
@@ -279,7 +285,7 @@ class FractionalDelay(Stage):
     def reset(self) -> None:
         self._filter.reset()
 
-    def process(self, block: np.ndarray) -> np.ndarray:
+    def process(self, block: ArrayLike) -> np.ndarray:
         if np.asarray(block).size == 0:
             return np.zeros(0, np.float32)
         return np.asarray(self._filter.process(np.asarray(block, dtype=np.float32)), dtype=np.float32)

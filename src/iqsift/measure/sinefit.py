@@ -97,7 +97,7 @@ def four_param_fit(
     a, b, c = three(w)
     for _ in range(max_iter):
 
-        def cols4(start: int, stop: int, w=w, a=a, b=b) -> np.ndarray:
+        def cols4(start: int, stop: int, w: float = w, a: float = a, b: float = b) -> np.ndarray:
             t = times(start, stop)
             cw, sw = np.cos(w * t), np.sin(w * t)
             return np.column_stack([cw, sw, np.ones(t.size), (t / span) * (-a * sw + b * cw)])

@@ -119,6 +119,15 @@ class ChannelSpec:
     noise_bandwidth_hz: float | None = None
     emission: str | None = None
 
+    @property
+    def channel_noise(self) -> tuple[float, float] | None:
+        """``(cnr_db, noise_bandwidth_hz)`` of the band-limited channel noise, or None without it."""
+        if self.cnr_db is None:
+            return None
+        # the parser sets noise_bandwidth_hz (default: the channel bandwidth) whenever cnr_db is given
+        assert self.noise_bandwidth_hz is not None
+        return self.cnr_db, self.noise_bandwidth_hz
+
 
 @dataclass(frozen=True)
 class Scenario:
@@ -207,8 +216,7 @@ def _hz(table: Mapping, key: str, where: str, default: Any = ..., *, positive: b
 
 
 def _seconds(value: Any, where: str, label: str, rate: float) -> float:
-    spec = parse_time(value, f"{where}: {label}")
-    return spec.seconds if spec.seconds is not None else spec.samples / rate
+    return parse_time(value, f"{where}: {label}").to_seconds(rate)
 
 
 def _freq_list(value: Any, where: str, label: str) -> list[float]:
@@ -440,10 +448,12 @@ def _check_emission(code: Any, mode: str, where: str) -> float | None:
 
 
 def _noise_extent(spec: ChannelSpec) -> float:
-    if spec.cnr_db is None:
+    noise = spec.channel_noise
+    if noise is None:
         return 0.0
-    lo, hi = signal_band(spec.mode, spec.noise_bandwidth_hz)
-    return max(abs(lo), abs(hi)) + noise_transition_hz(spec.noise_bandwidth_hz) / 2
+    _, noise_bandwidth = noise
+    lo, hi = signal_band(spec.mode, noise_bandwidth)
+    return max(abs(lo), abs(hi)) + noise_transition_hz(noise_bandwidth) / 2
 
 
 def noise_transition_hz(bandwidth: float) -> float:
@@ -463,9 +473,11 @@ def signal_band(mode: str, bandwidth: float) -> tuple[float, float]:
 def _occupied_rel(spec: ChannelSpec, duration: float) -> tuple[float, float]:
     carrier = spec.offset_hz + spec.carrier_offset_hz
     lo, hi = signal_band(spec.mode, spec.bandwidth_hz)
-    if spec.cnr_db is not None:
-        nlo, nhi = signal_band(spec.mode, spec.noise_bandwidth_hz)
-        edge = noise_transition_hz(spec.noise_bandwidth_hz) / 2
+    noise = spec.channel_noise
+    if noise is not None:
+        _, noise_bandwidth = noise
+        nlo, nhi = signal_band(spec.mode, noise_bandwidth)
+        edge = noise_transition_hz(noise_bandwidth) / 2
         lo, hi = min(lo, nlo - edge), max(hi, nhi + edge)
     spread = spec.fading.doppler_hz if spec.fading else 0.0
     drift = spec.drift_hz_per_s * duration

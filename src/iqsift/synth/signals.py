@@ -133,7 +133,7 @@ def analytic_message(message: np.ndarray, rate_hz: float, *, low_hz: float = 300
     x = np.asarray(message, dtype=np.float64)
     h = 2 * band_fir(rate_hz, low_hz, high_hz, message_transition_hz(low_hz, high_hz), one_sided=True)
     delay = (h.shape[0] - 1) // 2
-    return _signal.lfilter(h, 1.0, np.concatenate([x, np.zeros(delay)]))[delay:]
+    return _signal.lfilter(h, [1.0], np.concatenate([x, np.zeros(delay)]))[delay:]
 
 
 def ssb_signal(message: np.ndarray, rate_hz: float, *, sideband: str = "usb", level_dbfs: float = 0.0,
@@ -160,14 +160,16 @@ def awgn(n: int, *, rate_hz: float | None = None, density_dbfs_per_hz: float | N
     Give either ``power_dbfs`` (total power) or ``density_dbfs_per_hz`` with
     ``rate_hz`` (power = density + 10 log10(rate)).
     """
-    if (power_dbfs is None) == (density_dbfs_per_hz is None):
-        raise ParameterError("awgn: give exactly one of power_dbfs or density_dbfs_per_hz")
-    if density_dbfs_per_hz is not None:
+    if power_dbfs is not None and density_dbfs_per_hz is None:
+        total_dbfs = power_dbfs
+    elif density_dbfs_per_hz is not None and power_dbfs is None:
         if not rate_hz or rate_hz <= 0:
             raise ParameterError(f"rate_hz: needed (> 0) with density_dbfs_per_hz, got {rate_hz!r}")
-        power_dbfs = density_dbfs_per_hz + 10 * math.log10(rate_hz)
+        total_dbfs = density_dbfs_per_hz + 10 * math.log10(rate_hz)
+    else:
+        raise ParameterError("awgn: give exactly one of power_dbfs or density_dbfs_per_hz")
     rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
-    sigma = math.sqrt(10 ** (power_dbfs / 10) / 2)
+    sigma = math.sqrt(10 ** (total_dbfs / 10) / 2)
     return (rng.standard_normal(2 * int(n)).view(np.complex128) * sigma).astype(np.complex64)
 
 

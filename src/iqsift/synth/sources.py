@@ -172,9 +172,9 @@ class Interpolator:
             y.imag = im @ self.table
         else:
             y = np.lib.stride_tricks.sliding_window_view(x, 2 * INTERP_HALF) @ self.table
-        y = y.reshape(-1)
-        self._cache = (i, y)
-        return y
+        frame = y.reshape(-1)
+        self._cache = (i, frame)
+        return frame
 
     def take(self, n0: int, n1: int) -> np.ndarray:
         """Output samples ``n0 .. n1 - 1`` at the full rate."""
@@ -271,11 +271,12 @@ def filtered_noise_source(h: np.ndarray, sigma: float, rng: np.random.Generator,
     state = {"zi": np.zeros(h.shape[0] - 1, dtype=out_dtype)}
 
     def make() -> np.ndarray:
+        w: np.ndarray
         if complex_input:
             w = rng.standard_normal(2 * _CHUNK).view(np.complex128) * (sigma / math.sqrt(2))
         else:
             w = rng.standard_normal(_CHUNK) * sigma
-        y, state["zi"] = _signal.lfilter(h, 1.0, w, zi=state["zi"])
+        y, state["zi"] = _signal.lfilter(h, [1.0], w, zi=state["zi"])
         return y
 
     return _StreamSource(make, -INTERP_HALF, h.shape[0] - 1)
@@ -306,14 +307,15 @@ def file_filtered(path: str, sha256: str, low: float, high: float, transition: f
     if analytic:
         h = 2 * h
     delay = (h.shape[0] - 1) // 2
+    y: np.ndarray
     if loop:
         wrapped = np.zeros(frames, dtype=h.dtype)
         np.add.at(wrapped, (np.arange(h.shape[0]) - delay) % frames, h)
-        y = np.fft.ifft(np.fft.fft(x) * np.fft.fft(wrapped))
-        y = y if analytic else y.real
+        circular = np.fft.ifft(np.fft.fft(x) * np.fft.fft(wrapped))
+        y = circular if analytic else circular.real
         first = 0
     else:
-        y = _signal.lfilter(h, 1.0, np.concatenate([x, np.zeros(h.shape[0] - 1)]))
+        y = _signal.lfilter(h, [1.0], np.concatenate([x, np.zeros(h.shape[0] - 1)]))
         first = -delay
     y.setflags(write=False)
     return y, first, float(file_rate), frames

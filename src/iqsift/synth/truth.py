@@ -78,6 +78,7 @@ def _message_record(spec: ChannelSpec, rate: float, entropy: int) -> dict[str, A
             "rng": {"entropy": entropy, "spawn_key": [spec.index + 1, 0]},
         })
         return rec
+    assert msg.resolved_path is not None  # the parser resolves the path of every file message
     sha = sha256_of_file(msg.resolved_path)
     rec.update({"path": msg.path, "resolved_path": msg.resolved_path, "sha256": sha, "loop": msg.loop})
     y, first, file_rate, frames = file_filtered(msg.resolved_path, sha, msg.low_hz, msg.high_hz, transition,
@@ -138,6 +139,7 @@ def _level_scale(spec: ChannelSpec, msg_rms: float) -> tuple[float, float]:
     """(baseband scale A, expected average power while on) for a channel."""
     power = 10 ** (spec.level_dbfs / 10)
     if spec.mode == "am":
+        assert spec.depth is not None  # the parser gives every am channel a depth (default 0.5)
         return math.sqrt(power), power * (1 + spec.depth ** 2 * msg_rms ** 2)
     if spec.mode == "dsb":
         return math.sqrt(power) / msg_rms, power
@@ -160,22 +162,23 @@ def _channel_record(spec: ChannelSpec, scen: Scenario) -> dict[str, Any]:
         return None if center is None else center + rel
 
     noise = None
-    if spec.cnr_db is not None:
+    if spec.channel_noise is not None:
+        cnr_db, noise_bandwidth = spec.channel_noise
         power = 10 ** (spec.level_dbfs / 10)
-        density = power / (10 ** (spec.cnr_db / 10) * spec.noise_bandwidth_hz)
-        nlo, nhi = signal_band(spec.mode, spec.noise_bandwidth_hz)
-        transition = noise_transition_hz(spec.noise_bandwidth_hz)
+        density = power / (10 ** (cnr_db / 10) * noise_bandwidth)
+        nlo, nhi = signal_band(spec.mode, noise_bandwidth)
+        transition = noise_transition_hz(noise_bandwidth)
         ratio = rate_ratio(rate, (max(abs(nlo), abs(nhi)) + transition / 2) / PASS_FRACTION)
         noise_rate = rate / ratio
         taps = band_fir(noise_rate, nlo, nhi, transition, one_sided=True).shape[0]
         noise = {
-            "cnr_db": spec.cnr_db,
-            "bandwidth_hz": spec.noise_bandwidth_hz,
+            "cnr_db": cnr_db,
+            "bandwidth_hz": noise_bandwidth,
             "band_hz": [nlo, nhi],
             "band_meaning": "relative to the (drifting) carrier; flat density inside, Kaiser transitions "
                             "transition_hz wide centred on the edges",
             "density_dbfs_per_hz": 10 * math.log10(density),
-            "power_dbfs": 10 * math.log10(density * spec.noise_bandwidth_hz),
+            "power_dbfs": 10 * math.log10(density * noise_bandwidth),
             "reference": "cnr_db = 10 log10(C / (N0 B)), C = carrier power (am) or average signal power",
             "rate_hz": noise_rate,
             "ratio": ratio,

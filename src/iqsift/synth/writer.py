@@ -89,8 +89,7 @@ def write_synth(scenario: Scenario | Mapping[str, Any] | str | os.PathLike, out_
     meta_path, data_path = sigmf_paths(out_meta_path)
     truth_path = truth_path_for(out_meta_path)
     inputs = [Path(scen.source)] if scen.source and Path(str(scen.source)).exists() else []
-    inputs += [Path(ch.message.resolved_path) for ch in scen.channels
-               if getattr(ch.message, "resolved_path", None)]
+    inputs += [Path(path) for path in (ch.message.resolved_path for ch in scen.channels) if path]
     description = scen.description or (
         f"iqsift synthetic test capture (invented scenario): {len(scen.channels)} channel(s), seed {scen.seed}"
     )

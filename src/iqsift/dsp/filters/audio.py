@@ -93,7 +93,9 @@ def _measure_bandpass(taps: np.ndarray, fs: float, lo: float, hi: float, tw: flo
 
 
 @functools.lru_cache(maxsize=32)
-def _audio_bandpass_cached(fs: float, lo: float, hi: float, tw: float, a: float):
+def _audio_bandpass_cached(
+    fs: float, lo: float, hi: float, tw: float, a: float
+) -> tuple[np.ndarray, float, float, float, float]:
     """Kaiser's formulas are approximate: design, measure, raise the design attenuation by 0.5 dB
     until the measured stop band meets ``a``. Cached: every channel of a plan usually asks the same."""
     a_design = a

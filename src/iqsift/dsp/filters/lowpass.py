@@ -547,7 +547,9 @@ def _design_equiripple(rate: float, fp: float, fs: float, ripple: float, atten: 
             hi = mid
         else:
             lo = mid
-    taps, r, a = results[hi]  # type: ignore[misc]
+    best = results[hi]
+    assert best is not None  # ok(hi) held: the design of length hi exists
+    taps, r, a = best
     return _finish(
         taps, rate_hz=rate, passband_hz=fp, stopband_hz=fs, ripple_db=ripple, atten_db=atten,
         method="equiripple", measured_ripple_db=r, measured_atten_db=a, kaiser_beta=None,

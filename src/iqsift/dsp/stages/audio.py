@@ -3,9 +3,11 @@
 from __future__ import annotations
 
 import math
+from typing import Any
 
 import numpy as np
 import scipy.signal as ssig
+from numpy.typing import ArrayLike
 
 from ... import checks
 from ...errors import ParameterError
@@ -68,7 +70,7 @@ class DCBlock(Stage):
         self._complex_seen = False
         self._zi = np.zeros(1, dtype=np.float64)
 
-    def process(self, block) -> np.ndarray:
+    def process(self, block: ArrayLike) -> np.ndarray:
         x = self._prep(block)
         if x.dtype.kind == "c" and self._zi.dtype.kind != "c":
             self._zi = self._zi.astype(np.complex128)
@@ -78,7 +80,7 @@ class DCBlock(Stage):
         return self._out(y)
 
 
-def dc_block(x, rate_hz: float, cutoff_hz: float = 30.0) -> np.ndarray:
+def dc_block(x: ArrayLike, rate_hz: float, cutoff_hz: float = 30.0) -> np.ndarray:
     """One-shot :class:`DCBlock`."""
     return run_once(DCBlock(rate_hz, cutoff_hz), x)
 
@@ -205,7 +207,7 @@ class AGC(Stage):
         gains = g_start[:, None] + (g - g_start)[:, None] * ramp[None, :]
         return (frames * gains).ravel()
 
-    def process(self, block) -> np.ndarray:
+    def process(self, block: ArrayLike) -> np.ndarray:
         x = self._prep(block)
         if x.dtype.kind == "c" and self._held.dtype.kind != "c":
             self._held = self._held.astype(np.complex128)
@@ -226,7 +228,7 @@ class AGC(Stage):
         return out
 
 
-def agc(x, rate_hz: float, **kwargs) -> np.ndarray:
+def agc(x: ArrayLike, rate_hz: float, **kwargs: Any) -> np.ndarray:
     """One-shot :class:`AGC` (keyword arguments as the class)."""
     return run_once(AGC(rate_hz, **kwargs), x)
 
@@ -310,7 +312,7 @@ class AudioBandpass(FirFilter):
 
 
 def audio_bandpass(
-    x,
+    x: ArrayLike,
     rate_hz: float,
     low_hz: float = 300.0,
     high_hz: float = 3000.0,

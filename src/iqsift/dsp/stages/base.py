@@ -46,13 +46,14 @@ import abc
 from typing import Callable, Iterable, Sequence
 
 import numpy as np
+from numpy.typing import ArrayLike
 
 from ...errors import ParameterError
 
 __all__ = ["Stage", "Chain", "TapPoint", "Scale", "run_once", "checked_taps"]
 
 
-def checked_taps(name: str, taps) -> np.ndarray:
+def checked_taps(name: str, taps: ArrayLike) -> np.ndarray:
     """FIR taps as a float64 (or complex128) 1-D array; refused unless non-empty, numeric and finite."""
     h = np.asarray(taps)
     if h.ndim != 1 or h.size == 0:
@@ -65,7 +66,7 @@ def checked_taps(name: str, taps) -> np.ndarray:
     return h
 
 
-def _as_block(block) -> np.ndarray:
+def _as_block(block: ArrayLike) -> np.ndarray:
     x = np.asarray(block)
     if x.ndim != 1:
         raise ParameterError(f"block: expected a 1-D array of samples, got shape {x.shape}")
@@ -121,7 +122,7 @@ class Stage(abc.ABC):
         return self._delay
 
     @abc.abstractmethod
-    def process(self, block) -> np.ndarray:
+    def process(self, block: ArrayLike) -> np.ndarray:
         """Consume a 1-D block, return the completed output samples."""
 
     @abc.abstractmethod
@@ -147,7 +148,7 @@ class Stage(abc.ABC):
         return int(round(samples_in * self.rate_out / self.rate_in + self.delay))
 
     # helpers ---------------------------------------------------------------
-    def _prep(self, block) -> np.ndarray:
+    def _prep(self, block: ArrayLike) -> np.ndarray:
         x = _as_block(block)
         if x.dtype.kind == "c":
             self._complex_seen = True
@@ -158,7 +159,7 @@ class Stage(abc.ABC):
     def _is_complex(self) -> bool:
         return self._complex_stage or self._complex_seen
 
-    def _out_dtype(self):
+    def _out_dtype(self) -> type[np.complex64] | type[np.float32]:
         return np.complex64 if self._is_complex() else np.float32
 
     def _out(self, y: np.ndarray) -> np.ndarray:
@@ -171,7 +172,7 @@ class Stage(abc.ABC):
         return f"{type(self).__name__}(rate_in={self.rate_in:g}, rate_out={self.rate_out:g}, delay={self.delay:g})"
 
 
-def run_once(stage: Stage, x) -> np.ndarray:
+def run_once(stage: Stage, x: ArrayLike) -> np.ndarray:
     """One-shot use of a stage: ``concatenate(stage.process(x), stage.flush())``.
 
     The stage is not reset first (so a :meth:`Mixer.advance` seek is kept);
@@ -230,7 +231,7 @@ class Chain(Stage):
         out = self.rate_out
         return float(sum(s.delay * out / s.rate_out for s in self._stages))
 
-    def process(self, block) -> np.ndarray:
+    def process(self, block: ArrayLike) -> np.ndarray:
         y = _as_block(block)
         for s in self._stages:
             y = s.process(y)

@@ -13,6 +13,7 @@ import numpy as np
 import scipy.fft as sfft
 import scipy.signal as ssig
 from numpy.lib.stride_tricks import sliding_window_view
+from numpy.typing import ArrayLike
 
 from ... import checks
 from ...errors import ParameterError
@@ -82,7 +83,7 @@ class FirFilter(Stage):
     DIRECT_MAX_TAPS = 64
     _SMALL_BLOCK = 64
 
-    def __init__(self, taps, rate_hz: float, method: str = "auto", fft_size: int | None = None):
+    def __init__(self, taps: ArrayLike, rate_hz: float, method: str = "auto", fft_size: int | None = None) -> None:
         self._h = checked_taps("taps", taps)
         fs = checks.positive("rate_hz", rate_hz)
         self._rate_in = self._rate_out = fs
@@ -94,6 +95,8 @@ class FirFilter(Stage):
         if method == "auto":
             method = "fft" if n > self.DIRECT_MAX_TAPS else "direct"
         self._method = method
+        self._nfft: int | None
+        self._hop: int | None
         if method == "fft":
             if fft_size is None:
                 nfft = sfft.next_fast_len(max(8 * n, 256))
@@ -126,14 +129,14 @@ class FirFilter(Stage):
         m = self._h.size - 1
         self._state = np.zeros(m, dtype=np.complex128 if self._complex_stage else np.float64)
 
-    def process(self, block) -> np.ndarray:
+    def process(self, block: ArrayLike) -> np.ndarray:
         x = self._prep(block)
         if x.dtype.kind == "c" and self._state.dtype.kind != "c":
             self._state = self._state.astype(np.complex128)
         if x.size == 0:
             return self._empty()
         if self._method == "direct":
-            y, self._state = ssig.lfilter(self._h, 1.0, x, zi=self._state)
+            y, self._state = ssig.lfilter(self._h, [1.0], x, zi=self._state)
             return self._out(y)
         # fft method: _state holds the last N-1 inputs
         m = self._h.size - 1
@@ -149,6 +152,7 @@ class FirFilter(Stage):
     def _overlap_save(self, buf: np.ndarray, count: int) -> np.ndarray:
         m = self._h.size - 1
         nfft, hop = self._nfft, self._hop
+        assert nfft is not None and hop is not None  # set by __init__ for the fft method
         nseg = -(-count // hop)
         pad = m + nseg * hop - buf.size
         if pad:
@@ -166,7 +170,7 @@ class FirFilter(Stage):
         return out.ravel()[:count]
 
 
-def fir_filter(x, taps, rate_hz: float = 1.0, method: str = "auto") -> np.ndarray:
+def fir_filter(x: ArrayLike, taps: ArrayLike, rate_hz: float = 1.0, method: str = "auto") -> np.ndarray:
     """One-shot :class:`FirFilter`: ``lfilter(taps, 1, x)`` as float32/complex64."""
     return run_once(FirFilter(taps, rate_hz, method=method), x)
 
@@ -275,7 +279,7 @@ class FirDecimator(Stage):
     ``delay`` = (group delay of h in input samples) / D.
     """
 
-    def __init__(self, taps, down: int, rate_in_hz: float, translate_hz: float | None = None):
+    def __init__(self, taps: ArrayLike, down: int, rate_in_hz: float, translate_hz: float | None = None) -> None:
         h = checked_taps("taps", taps)
         self._down = checks.whole("down", down)
         fs = checks.positive("rate_in_hz", rate_in_hz)
@@ -318,7 +322,7 @@ class FirDecimator(Stage):
         if self._ratio is not None:
             self._out_phase = ExactPhase(self._ratio * self._down)
 
-    def process(self, block) -> np.ndarray:
+    def process(self, block: ArrayLike) -> np.ndarray:
         x = self._prep(block)
         y = self._core.process(x)
         if self._ratio is not None:
@@ -326,7 +330,9 @@ class FirDecimator(Stage):
         return self._out(y)
 
 
-def fir_decimate(x, taps, down: int, rate_in_hz: float = 1.0, translate_hz: float | None = None) -> np.ndarray:
+def fir_decimate(
+    x: ArrayLike, taps: ArrayLike, down: int, rate_in_hz: float = 1.0, translate_hz: float | None = None
+) -> np.ndarray:
     """One-shot :class:`FirDecimator`."""
     return run_once(FirDecimator(taps, down, rate_in_hz, translate_hz), x)
 
@@ -360,7 +366,7 @@ class RationalResampler(Stage):
     ``delay``.
     """
 
-    def __init__(self, taps, up: int, down: int, rate_in_hz: float):
+    def __init__(self, taps: ArrayLike, up: int, down: int, rate_in_hz: float) -> None:
         h = checked_taps("taps", taps)
         self._up = checks.whole("up", up)
         self._down = checks.whole("down", down)
@@ -389,11 +395,11 @@ class RationalResampler(Stage):
         self._complex_seen = False
         self._core.reset()
 
-    def process(self, block) -> np.ndarray:
+    def process(self, block: ArrayLike) -> np.ndarray:
         x = self._prep(block)
         return self._out(self._core.process(x))
 
 
-def resample(x, taps, up: int, down: int, rate_in_hz: float = 1.0) -> np.ndarray:
+def resample(x: ArrayLike, taps: ArrayLike, up: int, down: int, rate_in_hz: float = 1.0) -> np.ndarray:
     """One-shot :class:`RationalResampler` (leading ceil(n·up/down) samples of upfirdn)."""
     return run_once(RationalResampler(taps, up, down, rate_in_hz), x)

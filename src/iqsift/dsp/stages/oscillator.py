@@ -12,6 +12,7 @@ import operator
 from fractions import Fraction
 
 import numpy as np
+from numpy.typing import ArrayLike
 
 from ... import checks
 from ...errors import ParameterError
@@ -118,8 +119,8 @@ class ExactPhase:
         self.advance(count)
         if count == 0:
             return np.zeros(0, dtype=np.int64)
-        if self._table is not None:
-            # p < 2**16 and count < 2**47: the product fits in int64.
+        if self._a is None:
+            # table mode, q <= 2**16: p < 2**16 and count < 2**47, so the product fits in int64.
             return (base + p * np.arange(count, dtype=np.int64)) % q
         nsub = -(-count // self._B)
         bases = np.empty(nsub, dtype=np.int64)
@@ -216,7 +217,7 @@ class Mixer(Stage):
             raise ParameterError(f"n_samples: expected an integer, got {n_samples!r}") from None
         self._phase.advance(int(n))
 
-    def process(self, block) -> np.ndarray:
+    def process(self, block: ArrayLike) -> np.ndarray:
         x = self._prep(block)
         return self._out(x * self._phase.phasors(x.size))
 
@@ -225,6 +226,6 @@ class Mixer(Stage):
         self._complex_seen = False
 
 
-def mix(x, rate_hz: float, freq_hz: float) -> np.ndarray:
+def mix(x: ArrayLike, rate_hz: float, freq_hz: float) -> np.ndarray:
     """One-shot :class:`Mixer`: ``x · exp(-j 2π freq_hz n / rate_hz)``, complex64."""
     return run_once(Mixer(rate_hz, freq_hz), x)
