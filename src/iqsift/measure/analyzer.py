@@ -142,6 +142,7 @@ class ChannelAnalyzer:
         self.noise_floor_used_dbfs: float | None = None
         self.notes: list[str] = []
         self.time_offset_s = float(time_offset_s)
+        self._activity_fed = False
         self._win = max(1, int(round(window_s * self.rate)))
         self._awin = max(1, int(round(window_s * self.audio_rate)))
         self._env: list[np.ndarray] = []
@@ -171,15 +172,25 @@ class ChannelAnalyzer:
         return tone
 
     # -- feeding -------------------------------------------------------
+    def feed_activity(self, z: np.ndarray) -> None:
+        """Channel baseband block for the activity tracker: every sample from the start of the run, so that
+        activity times are capture times."""
+        if z.size:
+            self._result = None
+            self.activity.feed(z)
+            self._activity_fed = True
+
     def feed_baseband(self, z: np.ndarray) -> None:
-        """Channel baseband block (complex, carrier at 0 Hz)."""
+        """Channel baseband block (complex, carrier at 0 Hz) for the carrier, spectrum and depth; the
+        activity tracker is fed too unless :meth:`feed_activity` feeds it."""
         if z.size == 0:
             return
         self._result = None
         if self.carrier is not None:
             self.carrier.feed(z)
         self.spectrum.feed(z)
-        self.activity.feed(z)
+        if not self._activity_fed:
+            self.activity.feed(z)
         if self.is_am:
             env = np.abs(z).astype(np.float64)
             skip = min(env.size, self._env_skip)  # the run's start (filters filling) is not analysed

@@ -132,6 +132,8 @@ class ChannelBackEnd:
         self.trim_samples = int(round(delay_s * self.audio_rate_hz))
         self.residual_delay_s = delay_s - self.trim_samples / self.audio_rate_hz
         self.baseband_tap = TapPoint(rate)
+        self.settled_tap = TapPoint(rate)
+        self.settle_samples = design.settle_samples
         self.detector_tap = TapPoint(rate)
         self._trim = DelayTrim(self.trim_samples, self.audio_rate_hz)
         stages: list[Stage] = [self.detector, self.detector_tap, *post]
@@ -142,11 +144,17 @@ class ChannelBackEnd:
         self.power_sum = 0.0
         self.peak_power = 0.0
         self.baseband_samples = 0
+        self.level_samples = 0
 
     # -- observers -------------------------------------------------------------------------------
     def on_baseband(self, observer: Callable[[np.ndarray], object]) -> None:
         """Call ``observer`` with every block of channel baseband that carries signal (not end padding)."""
         self.baseband_tap.attach(observer)
+
+    def on_settled_baseband(self, observer: Callable[[np.ndarray], object]) -> None:
+        """Like :meth:`on_baseband`, without the front end's warm-up (:attr:`ChannelDesign.settle_samples`):
+        what levels and measurements see."""
+        self.settled_tap.attach(observer)
 
     def on_detector(self, observer: Callable[[np.ndarray], object]) -> None:
         """Call ``observer`` with every block of detector output."""
@@ -154,16 +162,21 @@ class ChannelBackEnd:
 
     # -- streaming ---------------------------------------------------------------------------------
     def observe(self, baseband: np.ndarray) -> None:
-        """Count a block of signal baseband in the level and show it to the baseband observers
+        """Count a block of signal baseband in the level (after the warm-up) and show it to the observers
         (done by :meth:`process`; called directly when a batch of channels is processed together)."""
         if not baseband.size:
             return
-        p = np.square(baseband.real)
-        p += np.square(baseband.imag)
-        self.power_sum += float(p.sum(dtype=np.float64))
-        self.peak_power = max(self.peak_power, float(p.max()))
+        warm = min(baseband.size, max(0, self.settle_samples - self.baseband_samples))
         self.baseband_samples += baseband.size
         self.baseband_tap.process(baseband)
+        settled = baseband[warm:]
+        if settled.size:
+            p = np.square(settled.real)
+            p += np.square(settled.imag)
+            self.power_sum += float(p.sum(dtype=np.float64))
+            self.peak_power = max(self.peak_power, float(p.max()))
+            self.level_samples += settled.size
+            self.settled_tap.process(settled)
 
     def process(self, baseband: np.ndarray) -> np.ndarray:
         """Channel baseband (carrier at 0 Hz) in, audio out (float32, delay-compensated)."""
@@ -202,10 +215,10 @@ class ChannelBackEnd:
     # -- results -----------------------------------------------------------------------------------
     @property
     def level_dbfs(self) -> float | None:
-        """Mean power of the channel baseband (dBFS)."""
-        if not self.baseband_samples or self.power_sum <= 0:
+        """Mean power of the channel baseband after the front end's warm-up (dBFS)."""
+        if not self.level_samples or self.power_sum <= 0:
             return None
-        return 10 * math.log10(self.power_sum / self.baseband_samples)
+        return 10 * math.log10(self.power_sum / self.level_samples)
 
     @property
     def peak_dbfs(self) -> float | None:

@@ -108,6 +108,20 @@ class ChannelDesign:
             raise ParameterError(f"engine: a {self.engine} design has no decimation plan", parameters=("engine",))
         return self.polyphase_plan
 
+    @property
+    def settle_samples(self) -> int:
+        """Channel-rate samples at the start of a run that the front end's filters compute partly from the
+        zeros before the first input sample (their warm-up): ceil(L / D) for a filter chain spanning L
+        input samples. Levels and measurements leave them out; the audio and the baseband keep them."""
+        if self.engine == "fft":
+            span = self.fft_prototype.num_taps - 1
+        else:
+            span, step = 0, 1
+            for stage in self.plan.stages:
+                span += (stage.lowpass.num_taps - 1) * step
+                step *= stage.down
+        return -(-span // self.decimation)
+
     def front_end_delay_s(self) -> float:
         """Group delay of the front end (s)."""
         if self.engine == "fft":

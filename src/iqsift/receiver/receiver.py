@@ -263,7 +263,8 @@ class Receiver:
             self.design.channel_rate_hz, self.audio_rate_hz, self.channel.mode, self.channel.bandwidth_hz,
             nominal, passband_hz=self.channel.passband_hz, **options,
         )
-        self.on_baseband(self.analyzer.feed_baseband)
+        self.on_baseband(self.analyzer.feed_activity)  # activity keeps the capture's time base
+        self.back.on_settled_baseband(self.analyzer.feed_baseband)  # measurements leave the warm-up out
         self.on_audio(self.analyzer.feed_audio)
         return self
 

@@ -1,0 +1,56 @@
+"""Levels and measurements leave the front end's warm-up out ([2/6] item 2).
+
+A channel's level is the mean power of its baseband (DESIGN.md: 10·log10(mean |x|²)). The first output
+samples of any FIR front end are computed partly from the zeros before the capture starts; a strong
+neighbour switched on at t = 0 then rings through the channel filter for one filter length. Reference:
+the steady-state mean power of the same baseband, measured here with numpy after the first 50 ms.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from iqsift import Receiver, make_channel
+
+FS = 240_000.0
+
+
+def neighbour_capture(seconds: float, wanted_dbfs: float | None) -> np.ndarray:
+    t = np.arange(int(FS * seconds)) / FS
+    x = 10 ** (-10 / 20) * np.exp(2j * np.pi * (25e3 / 3) * t)  # a -10 dBFS carrier one 8.33 kHz channel away
+    if wanted_dbfs is not None:
+        x = x + 10 ** (wanted_dbfs / 20) * np.exp(2j * np.pi * 37.0 * t)
+    return x.astype(np.complex64)
+
+
+@pytest.mark.parametrize("engine", ["fft", "polyphase"])
+@pytest.mark.parametrize("seconds", [0.3, 1.0])
+def test_level_of_an_empty_channel_beside_a_strong_neighbour_is_its_steady_state(engine, seconds):
+    rx = Receiver(FS, make_channel(offset=0, emission="6K00A3E"), engine=engine)
+    baseband: list[np.ndarray] = []
+    rx.on_baseband(baseband.append)
+    level = rx.run(samples=neighbour_capture(seconds, None)).report.channel["level_dbfs"]
+    b = np.concatenate(baseband)
+    steady = 10 * np.log10(np.mean(np.abs(b[int(0.05 * rx.design.channel_rate_hz):]) ** 2))
+    # before: -69.2 dBFS for a steady -96.4 (fft, 1 s): the start-up transient counted
+    assert level == pytest.approx(steady, abs=0.3)
+
+
+@pytest.mark.parametrize("engine", ["fft", "polyphase"])
+def test_a_weak_channel_beside_a_strong_neighbour_reads_its_true_level(engine):
+    rx = Receiver(FS, make_channel(offset=0, emission="6K00A3E"), engine=engine).analyze()
+    report = rx.run(samples=neighbour_capture(1.0, -60.0)).report
+    assert report.channel["level_dbfs"] == pytest.approx(-60.0, abs=0.02)  # before: 0.74 dB high
+    assert report.analysis is not None and report.analysis.carrier is not None
+    assert report.analysis.carrier.level_dbfs == pytest.approx(-60.0, abs=0.05)
+
+
+def test_warm_up_is_the_span_of_the_front_end_filters():
+    """ceil(L / D): L the input samples a channel-rate output depends on, D the decimation."""
+    d = Receiver(FS, make_channel(offset=0, emission="6K00A3E"), engine="polyphase").design
+    span = sum((s.lowpass.num_taps - 1) * int(np.prod([p.down for p in d.plan.stages[: s.index]]))
+               for s in d.plan.stages)
+    assert d.settle_samples == -(-span // d.decimation)
+    f = Receiver(FS, make_channel(offset=0, emission="6K00A3E")).design
+    assert f.settle_samples == -(-(f.fft_prototype.num_taps - 1) // f.decimation)
