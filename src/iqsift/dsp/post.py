@@ -296,21 +296,26 @@ class FractionalDelay(Stage):
 
 
 class Squelch:
-    """Mute the audio while the channel carries only noise.
+    """Mute the audio while the channel carries only noise, from the first sample on.
 
-    The channel baseband is cut into 10 ms frames (grid continued across blocks); a frame is open when
-    its power is at least ``threshold_db`` above the noise floor, taken as the quietest frame seen so
-    far. Until the loudest and quietest frames seen differ by the threshold, the floor is unknown and
-    the squelch stays open (a channel busy from the start, or a continuous carrier, is never muted).
-    Opening and closing follow the frame levels with a linear ramp between frame centres (no clicks).
-    Squelch circuits of radio receivers work on the same principle (common practice); this one is
-    causal in the frames it has seen.
+    The noise floor comes from the spectrum, not from the loudness history: the channel baseband's
+    power density is averaged over 25 ms Hann segments, and its 10th percentile across the passband,
+    times the passband width, is the noise power in the channel. Most of a voice channel's passband
+    holds only noise most of the time (a carrier is one line, speech energy is concentrated), so the
+    estimate holds whether the channel starts idle, busy, or carries a continuous carrier (common
+    practice; the same estimate as :meth:`iqsift.measure.ChannelAnalyzer.noise_floor_dbfs`).
 
-    Not a :class:`~iqsift.dsp.stages.Stage`: it does not turn a block of samples into a block of
-    samples. It watches the channel baseband (:meth:`feed`, at the channel rate) and answers with a
-    gain curve at any times asked for (:meth:`gain`, applied to the audio at the audio rate), so
-    its input and output are different signals at different rates, and the gain for a time is
-    known only once the frames around it have been fed.
+    The baseband is cut into 10 ms frames (grid continued across blocks); a frame is open when its
+    power is at least ``threshold_db`` above the floor. Opening and closing follow the frame levels with
+    a linear ramp between frame centres (no clicks). The floor is updated once per ``look_ahead_s`` of
+    baseband (the spectrum of everything up to the end of that stretch), and audio is held back until
+    the stretch it belongs to is complete: a look-ahead that closes the squelch from the first sample
+    when the channel starts idle, and makes the result independent of how the stream is cut into
+    blocks. The first audio therefore leaves up to ``look_ahead_s`` late; at the end of the stream
+    everything held is released.
+
+    Not a :class:`~iqsift.dsp.stages.Stage`: it watches the channel baseband (:meth:`feed`, at the channel
+    rate) and gates the audio (:meth:`apply`, at the audio rate): two signals at two rates.
 
     Parameters
     ----------
@@ -318,39 +323,115 @@ class Squelch:
         Channel baseband rate (samples/s).
     threshold_db : float
         Opening threshold above the noise floor (dB).
+    passband_hz : (float, float)
+        The channel's passband relative to the carrier (Hz), where the floor is read.
+    audio_rate_hz : float
+        Rate of the audio gated by :meth:`apply` (samples/s).
+    time_offset_s : float
+        Time of the first baseband sample fed, relative to the first audio sample (s).
+    look_ahead_s : float
+        Stretch of baseband over which the floor is updated, and the most audio is held back (s).
     """
 
     FRAME_S = 0.01
+    SEGMENT_S = 0.025
+    PERCENTILE = 10.0
 
-    def __init__(self, rate_hz: float, threshold_db: float) -> None:
+    def __init__(self, rate_hz: float, threshold_db: float, passband_hz: tuple[float, float] = (-3000.0, 3000.0),
+                 audio_rate_hz: float = 16000.0, time_offset_s: float = 0.0, look_ahead_s: float = 0.5) -> None:
         self.rate_hz = float(rate_hz)
         self.threshold_db = float(threshold_db)
+        self.audio_rate_hz = float(audio_rate_hz)
+        self.time_offset_s = float(time_offset_s)
         self.frame = max(1, int(round(self.FRAME_S * self.rate_hz)))
-        self._tail = np.zeros(0, np.float64)
-        self._gates: list[float] = []
-        self._low = np.inf
-        self._high = -np.inf
+        self.nseg = 1 << max(5, int(round(np.log2(self.SEGMENT_S * self.rate_hz))))
+        self.stretch = self.nseg * max(1, int(np.ceil(look_ahead_s * self.rate_hz / self.nseg)))
+        self.window = np.hanning(self.nseg + 2)[1:-1]
+        self._scale = 1.0 / (self.rate_hz * float(np.sum(self.window**2)))  # |FFT|^2 -> power per Hz
+        freqs = np.fft.fftfreq(self.nseg, 1 / self.rate_hz)
+        lo, hi = passband_hz
+        self.band = (freqs >= lo) & (freqs <= hi)
+        if self.band.sum() < 4:  # a very narrow passband: read the floor over the whole channel band
+            self.band = np.ones(self.nseg, bool)
+        self.band_hz = max(float(hi - lo), self.rate_hz / self.nseg)
+        self._psd_sum = np.zeros(self.nseg)
+        self._segments = 0
+        self._floors: list[float] = []  # floor (dBFS) of each complete stretch
+        self._seg_tail = np.zeros(0, np.complex128)
+        self._frame_tail = np.zeros(0, np.float64)
+        self._levels: list[float] = []
+        self._fed = 0
+        self._held = np.zeros(0, np.float32)
+        self._released = 0  # audio samples released so far
+
+    def _floor_now(self) -> float:
+        if not self._segments:
+            return -300.0
+        density = self._psd_sum[self.band] / self._segments
+        return float(10 * np.log10(max(float(np.percentile(density, self.PERCENTILE)) * self.band_hz, 1e-30)))
+
+    @property
+    def floor_dbfs(self) -> float | None:
+        """The latest noise floor in the passband (dBFS), once a segment has been seen."""
+        return self._floor_now() if self._segments else None
 
     def feed(self, baseband: np.ndarray) -> None:
         """Add channel baseband samples (complex)."""
-        p = np.square(np.abs(np.asarray(baseband))).astype(np.float64)
-        buf = np.concatenate([self._tail, p]) if self._tail.size else p
+        z = np.asarray(baseband)
+        while z.size:  # stretch by stretch, so each floor covers exactly the data up to its stretch's end
+            room = self.stretch - self._fed % self.stretch
+            self._feed(z[:room])
+            z = z[room:]
+            if self._fed % self.stretch == 0:
+                self._floors.append(self._floor_now())
+
+    def _feed(self, z: np.ndarray) -> None:
+        self._fed += z.size
+        seg = np.concatenate([self._seg_tail, z]) if self._seg_tail.size else z.astype(np.complex128)
+        count = seg.size // self.nseg
+        if count:
+            frames = seg[: count * self.nseg].reshape(count, self.nseg) * self.window
+            self._psd_sum += (np.abs(np.fft.fft(frames, axis=1)) ** 2).sum(axis=0) * self._scale
+            self._segments += count
+        self._seg_tail = seg[count * self.nseg :]
+        p = np.square(np.abs(z)).astype(np.float64)
+        buf = np.concatenate([self._frame_tail, p]) if self._frame_tail.size else p
         count = buf.size // self.frame
         if count:
-            levels = 10 * np.log10(np.maximum(buf[: count * self.frame].reshape(count, self.frame).mean(axis=1),
-                                              1e-30))
-            low = np.minimum.accumulate(np.minimum(levels, self._low))
-            high = np.maximum.accumulate(np.maximum(levels, self._high))
-            self._low, self._high = float(low[-1]), float(high[-1])
-            known = high - low >= self.threshold_db
-            self._gates.extend(np.where(known & (levels < low + self.threshold_db), 0.0, 1.0).tolist())
-        self._tail = buf[count * self.frame :]
+            levels = buf[: count * self.frame].reshape(count, self.frame).mean(axis=1)
+            self._levels.extend((10 * np.log10(np.maximum(levels, 1e-30))).tolist())
+        self._frame_tail = buf[count * self.frame :]
 
-    def gain(self, times_s: np.ndarray) -> np.ndarray:
-        """Audio gain (0..1) at the given capture times (s); open where no frame is known yet."""
-        if not self._gates:
+    def _gains(self, times_s: np.ndarray) -> np.ndarray:
+        if not self._levels:
             return np.ones(times_s.size, np.float32)
-        centres = (np.arange(len(self._gates)) + 0.5) * self.frame / self.rate_hz
-        g = np.interp(times_s, centres, np.asarray(self._gates), left=self._gates[0], right=1.0)
-        g[times_s > centres[-1] + 0.5 * self.frame / self.rate_hz] = 1.0
-        return g.astype(np.float32)
+        levels = np.asarray(self._levels)
+        centre_samples = (np.arange(levels.size) + 0.5) * self.frame
+        stretch = (centre_samples // self.stretch).astype(int)
+        floors = np.asarray(self._floors + [self._floor_now()])  # the last: the stretch still open
+        gates = (levels >= floors[np.minimum(stretch, floors.size - 1)] + self.threshold_db).astype(np.float64)
+        centres = self.time_offset_s + centre_samples / self.rate_hz
+        return np.interp(times_s, centres, gates, left=gates[0], right=gates[-1]).astype(np.float32)
+
+    def apply(self, audio: np.ndarray, final: bool = False) -> np.ndarray:
+        """Gate audio (the samples following those given before); returns the audio that can be released
+        now (its frames' stretches are complete), all of it when ``final``."""
+        held = np.concatenate([self._held, np.asarray(audio, np.float32)]) if self._held.size else \
+            np.asarray(audio, np.float32)
+        if final:
+            ready = held.size
+        else:
+            # frames whose centres lie in complete stretches are decided; audio up to the last such centre goes
+            decided = int(np.floor((len(self._floors) * self.stretch) / self.frame - 0.5)) + 1
+            decided = min(decided, len(self._levels))
+            if decided <= 0:
+                ready = 0
+            else:
+                known_s = self.time_offset_s + (decided - 0.5) * self.frame / self.rate_hz
+                ready = int(np.clip(np.floor(known_s * self.audio_rate_hz) + 1 - self._released, 0, held.size))
+        out, self._held = held[:ready], held[ready:]
+        if out.size:
+            times = (self._released + np.arange(out.size)) / self.audio_rate_hz
+            out = out * self._gains(times)
+            self._released += out.size
+        return out

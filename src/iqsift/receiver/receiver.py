@@ -191,10 +191,12 @@ class Receiver:
         # mute the audio while the channel holds only noise (Channel.squelch_db dB above the floor)
         self.squelch = None
         if self.channel.squelch_db is not None:
-            self.squelch = Squelch(design.channel_rate_hz, self.channel.squelch_db)
-            self.on_baseband(self.squelch.feed)
+            self.squelch = Squelch(design.channel_rate_hz, self.channel.squelch_db, self.channel.passband_hz,
+                                   self.audio_rate_hz, time_offset_s=design.settle_samples / design.channel_rate_hz)
+            self.back.on_settled_baseband(self.squelch.feed)
         self.samples_in = 0
         self.audio_out = 0
+        self._produced = 0  # audio samples made by the back end (the squelch may hold some back)
 
     @classmethod
     def for_capture(cls, capture: "Capture", channel: Channel, selection: "SampleRange | None" = None,
@@ -313,11 +315,12 @@ class Receiver:
         return max(0, min(left, available))
 
     def emit(self, audio: np.ndarray, at_end: bool = False) -> np.ndarray:
-        """Deliver audio from the back end: edge fades, squelch, audio observers; returns it."""
+        """Deliver audio from the back end: edge fades, squelch (which may hold audio back until it knows
+        the noise floor), audio observers; returns the audio delivered now."""
         audio = self._fade(audio, at_end)
-        if self.squelch is not None and audio.size:
-            times = (self.audio_out + np.arange(audio.size)) / self.audio_rate_hz
-            audio = audio * self.squelch.gain(times)
+        self._produced += audio.size
+        if self.squelch is not None:
+            audio = self.squelch.apply(audio, final=at_end)
         self._audio_tap.process(audio)
         self.audio_out += audio.size
         return audio
@@ -326,7 +329,7 @@ class Receiver:
         """Emit the final audio, cut or zero-padded to round(samples_in × audio rate / input rate) in all."""
         self._warn_if_short()
         audio = np.asarray(audio, dtype=np.float32)
-        need = max(0, self.expected_audio_samples - self.audio_out)
+        need = max(0, self.expected_audio_samples - self._produced)
         if audio.size < need:
             audio = np.concatenate([audio, np.zeros(need - audio.size, np.float32)])
         return self.emit(audio[:need], at_end=True)
@@ -338,12 +341,12 @@ class Receiver:
         up to ~30 % of full scale). The fades confine the edits to 5 ms at each end.
         """
         n_fade = int(round(EDGE_FADE_S * self.audio_rate_hz))
-        head = n_fade - self.audio_out
+        head = n_fade - self._produced
         if (head <= 0 and not at_end) or not audio.size:
             return audio
         audio = np.array(audio, dtype=np.float32, copy=True)
         if head > 0 and audio.size:
-            k = np.arange(self.audio_out, self.audio_out + min(head, audio.size))
+            k = np.arange(self._produced, self._produced + min(head, audio.size))
             audio[: k.size] *= (0.5 - 0.5 * np.cos(np.pi * (k + 0.5) / n_fade)).astype(np.float32)
         if at_end and audio.size:
             m = min(n_fade, audio.size)
