@@ -111,6 +111,8 @@ class CarrierNormaliser(Stage):
         """The same normaliser for ``rows`` channels processed together."""
         return CarrierNormaliser(rows=rows, **self._settings)
 
+    _signal_end: int | None
+
     def signal_ends(self, samples_in: int) -> None:
         """Input from sample ``samples_in`` on is padding: leave it out of the carrier level."""
         self._signal_end = int(samples_in)
@@ -132,7 +134,7 @@ class CarrierNormaliser(Stage):
     def reset(self) -> None:
         self._lp.reset()
         self._seen = 0
-        self._signal_end: int | None = None
+        self._signal_end = None
         self._cover = FirFilter(self.design.taps, self.rate_hz)
         self._run = 0  # consecutive valid samples fed most recently
         self._cover_stale = False

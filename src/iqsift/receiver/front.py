@@ -16,6 +16,7 @@ from __future__ import annotations
 from typing import Callable
 
 import numpy as np
+from numpy.typing import ArrayLike
 
 from ..dsp.channelizer import BankChannel, FastConvChannelizer
 from ..dsp.stages import FirDecimator, Mixer, Stage, TapPoint
@@ -55,7 +56,8 @@ class PolyphaseFrontEnd(Stage):
         """What follows is padding: the stage observers see no more of it."""
         self._observing = False
 
-    def process(self, block: np.ndarray) -> np.ndarray:
+    def process(self, block: ArrayLike) -> np.ndarray:
+        block = np.asarray(block)
         for stage, tap in zip(self.stages, self.stage_taps):
             block = stage.process(block)
             if self._observing:
@@ -97,8 +99,8 @@ class FftFrontEnd(Stage):
         self._rate_out = design.channel_rate_hz
         self._delay = self.delay_s * design.channel_rate_hz
 
-    def process(self, block: np.ndarray) -> np.ndarray:
-        return self.mixer.process(self.bank.process(block)[0])
+    def process(self, block: ArrayLike) -> np.ndarray:
+        return self.mixer.process(self.bank.process(np.asarray(block))[0])
 
     def flush(self) -> np.ndarray:
         return self.mixer.process(self.bank.flush()[0])

@@ -161,7 +161,7 @@ class Receiver:
                                 ripple_db=ripple_db, atten_db=atten_db)
         self._build(design, center_hz, front_end_for(design, workers), agc, detector_options)
         if spectra:
-            names = (*TAP_NAMES, "stages") if spectra is True else tuple(spectra)  # type: ignore[arg-type]
+            names = (*TAP_NAMES, "stages") if spectra is True else tuple(spectra)
             taps = StageTaps(design, center_hz, names)
             taps.attach(self)
             self.taps = taps
