@@ -281,11 +281,12 @@ class TapPoint(Stage):
         """True once something watches this point."""
         return bool(self._observers)
 
-    def process(self, block: np.ndarray) -> np.ndarray:
-        if block.size:
+    def process(self, block: ArrayLike) -> np.ndarray:
+        x = np.asarray(block)
+        if x.size:
             for observer in self._observers:
-                observer(block)
-        return block
+                observer(x)
+        return x
 
     def reset(self) -> None:
         """Nothing to forget (observers stay attached)."""
@@ -310,7 +311,7 @@ class Scale(Stage):
         self._rate_in = self._rate_out = float(rate_hz)
         self._delay = 0.0
 
-    def process(self, block: np.ndarray) -> np.ndarray:
+    def process(self, block: ArrayLike) -> np.ndarray:
         return np.asarray(block, dtype=np.float32) * self.gain
 
     def reset(self) -> None:
