@@ -42,6 +42,7 @@ from .bandwidth import measure_bandwidth
 from .carrier import CarrierAccumulator
 from .modulation import ModulationResult, measure_depth
 from .sections import (
+    PEAK_EDGES,
     AnalysisResult,
     AudioQualitySummary,
     ChannelBandwidthResult,
@@ -150,6 +151,7 @@ class ChannelAnalyzer:
         self._env_t = 0
         self._env_skip = int(round(EDGE_GUARD_S * self.rate))
         self._depths: list[Window] = []
+        self._peaks: list[Window] = []  # (start_s, end_s, carrier level, histogram of |z|/Ec - 1)
         self._depth_failures = _Failures()
         self._aud: list[np.ndarray] = []
         self._aud_n = 0
@@ -229,12 +231,16 @@ class ChannelAnalyzer:
         if window.size < max(64, int(0.8 * self._win)):
             return
         level = float(np.mean(window**2))
+        t1 = self._env_t / self.rate
+        carrier = float(np.mean(window))
+        if carrier > 0:  # the instantaneous modulation, kept as a histogram for program material
+            counts = np.histogram(window / carrier - 1.0, bins=PEAK_EDGES)[0].astype(np.uint32)
+            self._peaks.append((t1 - window.size / self.rate, t1, carrier, counts))
         try:
             result = measure_depth(window, self.rate)
         except _NO_RESULT as exc:  # a window without modulation or carrier: no depth from it
             self._depth_failures.add(exc)
             return
-        t1 = self._env_t / self.rate
         self._depths.append((t1 - window.size / self.rate, t1, level, result))
 
     def _audio_window(self, final: bool = False) -> None:
@@ -347,7 +353,14 @@ class ChannelAnalyzer:
             self.notes.append("modulation: every analysis window touches the start or end of the run")
             self._reasons["modulation"] = "every analysis window touches the start or end of the run"
             return None
-        return ModulationSummary.of_windows(chosen, window_s)
+        summary = ModulationSummary.of_windows(chosen, window_s)
+        if summary.method != "tone-fit":  # no dominant test tone: program material, peaks over the active time
+            active = _inside(self._peaks, self._segments, self._env_t / self.rate)
+            if active:
+                counts = np.sum([w[3] for w in active], axis=0)
+                return ModulationSummary.of_program(counts, PEAK_EDGES, len(active), window_s,
+                                                    float(np.median([w[2] for w in active])))
+        return summary
 
     def _bandwidth_section(self) -> ChannelBandwidthResult | None:
         if not self.spectrum.ready:
@@ -395,6 +408,12 @@ class _Failures:
         if not self.count:
             return reason
         return f"{reason}; {self.count} window(s) gave no result, the last: {self.last}"
+
+
+def _inside(windows: list[Window], segments: list[tuple[float, float]], run_s: float) -> list[Window]:
+    """The windows away from the run's ends (EDGE_GUARD_S) and inside an activity segment (10 ms margin)."""
+    return [w for w in windows if w[0] >= EDGE_GUARD_S and w[1] <= run_s - EDGE_GUARD_S
+            and any(a - 0.01 <= w[0] and w[1] <= b + 0.01 for a, b in segments)]
 
 
 def _steady(windows: list[Window], segments: list[tuple[float, float]], run_s: float) -> list[Any]:

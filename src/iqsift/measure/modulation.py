@@ -37,8 +37,8 @@ class ModulationResult(Reportable):
         100·(Emax − Ec)/Ec.
     depth_negative_percent : float
         100·(Ec − Emin)/Ec.
-    tone_hz : float
-        Dominant modulating frequency (Hz).
+    tone_hz : float or None
+        Dominant modulating frequency (Hz); None for program material (no dominant tone).
     carrier_level : float
         Ec, the mean envelope (same unit as the envelope).
     method : str
@@ -48,7 +48,7 @@ class ModulationResult(Reportable):
     depth_percent: float
     depth_positive_percent: float
     depth_negative_percent: float
-    tone_hz: float
+    tone_hz: float | None
     carrier_level: float
     method: str
 
