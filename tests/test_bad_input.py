@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -209,3 +210,28 @@ def test_spectra_folder_is_checked_before_any_work(run_cli, tmp_path):
     assert not (tmp_path / "a.wav").exists()
     assert_one_line_error(run_cli("demod", meta, "--offset", "1k", "-o", tmp_path / "a.wav", "--spectra",
                                   tmp_path / "no" / "sp"), "does not exist")
+
+
+LIBRARY_WORDS = ("stopband_hz", "passband_hz", "ripple_db", "atten_db", "parse_emission_class", "tone_hz", "x_db",
+                 "Kaiser's formula:", "rate_hz=")
+
+
+@pytest.mark.parametrize(("args", "fragments"), [
+    (["design", "--rate", "240k", "-e", "6K00A3E", "--audio-rate", "8000.5"], ["--audio-rate", "whole number"]),
+    (["design", "--rate", "240k", "-e", "6K00A3E", "--transition", "1"], ["--transition", "too narrow", "wider"]),
+    (["design", "--rate", "2.4M", "-e", "6K00A3E", "--transition", "0.5", "--engine", "polyphase"],
+     ["--transition", "too narrow"]),
+    (["design", "--rate", "240k", "-e", "A3E"], ["--emission", "6K00A3E"]),
+    (["design", "--rate", "240k", "-e", "6K00A3E", "--ripple", "-1"], ["--ripple"]),
+    (["measure", "SAMPLE", "--offset", "0", "--tone", "50k"], ["--tone", "audio band"]),
+    (["measure", "SAMPLE", "--offset", "0", "--x-db", "-5"], ["--x-db"]),
+    (["measure", "SAMPLE", "--offset", "0", "--weighting", "bogus"], ["--weighting"]),
+    (["demod", "SAMPLE", "--freq", "1", "--offset", "2", "-o", "OUT.wav"], ["--freq", "--offset"]),
+])
+def test_errors_speak_in_the_users_words(run_cli, tmp_path, args, fragments):
+    # [2/6] item 11: refused (exit 2, one line), in flags rather than library parameter names
+    sample = str(Path(__file__).resolve().parents[1] / "sample_captures" / "vhf_airband.sigmf-meta")
+    args = [sample if a == "SAMPLE" else str(tmp_path / a) if a == "OUT.wav" else a for a in args]
+    line = assert_one_line_error(run_cli(*args), *fragments)
+    assert not any(word in line for word in LIBRARY_WORDS), line
+    assert not (tmp_path / "OUT.wav").exists()

@@ -89,7 +89,11 @@ class Channel:
         if (self.frequency_hz is None) == (self.offset_hz is None):
             raise ParameterError(f"channel {self.name!r}: give exactly one of frequency and offset")
         if not (math.isfinite(self.audio_rate_hz) and 1000 <= self.audio_rate_hz <= 384000):
-            raise ParameterError(f"audio rate: must be between 1000 and 384000 samples/s, got {self.audio_rate_hz!r}")
+            raise ParameterError(f"audio_rate: got {self.audio_rate_hz!r} samples/s; it must be between 1000 and "
+                                 "384000 samples/s")
+        if self.audio_rate_hz != round(self.audio_rate_hz):
+            raise ParameterError(f"audio_rate: got {self.audio_rate_hz!r} samples/s; an audio file's rate is a whole "
+                                 "number of samples/s")
 
     # -- geometry ------------------------------------------------------
     @property

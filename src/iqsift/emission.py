@@ -407,7 +407,7 @@ def parse_emission(code: str, mode: str | None = None) -> Emission:
     if len(text) < 7 or len(text) > 9:
         raise ParameterError(
             f"emission {code!r}: a designator is a 4-character bandwidth code and 3 to 5 class symbols, "
-            "e.g. 6K00A3E; for a class alone use parse_emission_class"
+            "e.g. 6K00A3E"
         )
     try:
         bandwidth = parse_bandwidth_code(text[:4])

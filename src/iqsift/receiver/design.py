@@ -16,6 +16,8 @@ from typing import Any
 from ..channel import Channel
 from ..dsp.channelizer import choose_fft_size, power_of_two_decimation, smooth_numbers
 from ..dsp.filters import (
+    MAX_TAPS,
+    FilterTooLongError,
     DecimationPlan,
     LowpassDesign,
     ResamplerDesign,
@@ -286,17 +288,23 @@ def design_channel(
     half = 0.5 * (hi - lo)
     prototype = plan = None
     fft_size = hop = None
-    if engine == "fft":
-        # Kaiser window: its passband ripple equals its stopband deviation (0.002 dB p-p at 80 dB), far inside
-        # the ripple specification. An equiripple design that spends the whole 0.1 dB would by itself limit
-        # the recovered message to about 45 dB SNR (tones falling on ripple peaks and troughs), and its
-        # exchange search costs start-up time.
-        prototype = design_lowpass(rate_hz, half, half + t, ripple_db, atten_db, method="kaiser")
-        history = int(math.ceil((prototype.num_taps - 1) / decimation)) * decimation
-        fft_size = choose_fft_size(history, decimation)
-        hop = ((fft_size - history) // decimation) * decimation
-    else:
-        plan = plan_decimation(rate_hz, half, half + t, decimation, ripple_db, atten_db)
+    try:
+        if engine == "fft":
+            # Kaiser window: its passband ripple equals its stopband deviation (0.002 dB p-p at 80 dB), far inside
+            # the ripple specification. An equiripple design that spends the whole 0.1 dB would by itself limit
+            # the recovered message to about 45 dB SNR (tones falling on ripple peaks and troughs), and its
+            # exchange search costs start-up time.
+            prototype = design_lowpass(rate_hz, half, half + t, ripple_db, atten_db, method="kaiser")
+            history = int(math.ceil((prototype.num_taps - 1) / decimation)) * decimation
+            fft_size = choose_fft_size(history, decimation)
+            hop = ((fft_size - history) // decimation) * decimation
+        else:
+            plan = plan_decimation(rate_hz, half, half + t, decimation, ripple_db, atten_db)
+    except FilterTooLongError:
+        raise ParameterError(
+            f"transition: {t:g} Hz is too narrow for channel {where} at {rate_hz:g} samples/s: its filter would "
+            f"need more than the {MAX_TAPS} taps iqsift designs; give a wider transition", parameters=("transition",)
+        ) from None
     audio_top = channel.audio_top_hz
     audio_rate = channel.audio_rate_hz
     if audio_top >= 0.5 * min(ch_rate, audio_rate):

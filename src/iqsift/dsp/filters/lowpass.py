@@ -52,6 +52,7 @@ from ... import checks
 from ...errors import ParameterError
 
 __all__ = [
+    "FilterTooLongError",
     "DEFAULT_RIPPLE_DB",
     "DEFAULT_ATTEN_DB",
     "MAX_EQUIRIPPLE_TAPS",
@@ -82,6 +83,11 @@ MAX_EQUIRIPPLE_TAPS = 1500
 
 MAX_TAPS = 262_143
 """Longest filter designed at all (a transition this narrow is almost certainly a mistake)."""
+
+
+class FilterTooLongError(ParameterError):
+    """A filter specification whose transition band is too narrow for the longest filter iqsift designs."""
+
 
 _GRID_POINTS_PER_TAP = 32  # ~16 grid points per sidelobe; the parabolic refinement finds the peaks between them
 """Measurement grid density: FFT length >= this many points per tap (spacing rate/(128 N))."""
@@ -479,10 +485,12 @@ def _design_kaiser(rate: float, fp: float, fs: float, ripple: float, atten: floa
             )
         # Kaiser's formula runs a few per cent short at high attenuation: grow in 3 % steps (a few rounds)
         n = _odd_at_least(n + max(2, 0.03 * n))
-    raise ParameterError(
-        f"stopband_hz - passband_hz = {fs - fp:g} Hz at rate_hz={rate:g}: the transition is too narrow "
-        f"for ripple_db={ripple:g}/atten_db={atten:g} within {MAX_TAPS} taps (Kaiser's formula: {n_formula})"
-    )
+    need = f"Kaiser's formula asks for {n_formula} taps" if n_formula > MAX_TAPS else \
+        f"the design grew past {MAX_TAPS} taps from Kaiser's {n_formula}"
+    raise FilterTooLongError(
+        f"stopband_hz - passband_hz = {fs - fp:g} Hz at rate_hz={rate:g}: the transition is too narrow for "
+        f"ripple_db={ripple:g}/atten_db={atten:g}: {need}, and iqsift designs at most {MAX_TAPS}",
+        parameters=("stopband_hz", "passband_hz"))
 
 
 def _remez_try(n: int, rate: float, fp: float, fs: float, weight_stop: float,
