@@ -32,6 +32,7 @@ import csv
 import io
 import json
 import math
+from dataclasses import dataclass
 import os
 import sys
 from pathlib import Path
@@ -50,6 +51,7 @@ if TYPE_CHECKING:  # matplotlib itself is imported lazily, in _matplotlib()
     from matplotlib.figure import Figure
 
 __all__ = [
+    "Band",
     "PALETTE",
     "db_range",
     "plot_stage_spectrum",
@@ -66,6 +68,7 @@ PALETTE: dict[str, str] = {
     "stopband": "#8a8f98",  # slate grey: stopband shading
     "channel": "#e8b93c",  # ochre: the channel's stated bandwidth
     "envelope": "#a3263f",  # garnet: envelope / level traces
+    "clip": "#d4122a",  # signal red: samples clipped at full scale
     "grid": "#dfe3e8",
     "text": "#22262b",
     "face": "#fbfbf8",
@@ -77,6 +80,7 @@ _DPI = 110
 _WIDTH_IN = 10.0
 
 _RC = {
+    "svg.hashsalt": "iqsift",  # fixed ids in SVG output: byte-reproducible figures
     "font.size": 10.5,
     "axes.titlesize": 11,
     "axes.labelsize": 10.5,
@@ -124,6 +128,15 @@ def _check_fmt(fmt: str, path: str | os.PathLike) -> str:
     return fmt
 
 
+@dataclass(frozen=True)
+class Band:
+    """A band to shade on a spectrum (Hz, relative to the spectrum's centre) and its legend text."""
+
+    lo_hz: float
+    hi_hz: float
+    label: str
+
+
 def _check_title(title: Any) -> str:
     if not isinstance(title, str) or not title.strip():
         raise ParameterError(f"title: must name the capture and channel, got {title!r}")
@@ -131,8 +144,14 @@ def _check_title(title: Any) -> str:
 
 
 def _save(fig: Any, path: str | os.PathLike, fmt: str, force: bool) -> Path:
+    # no creation date in the file, so the same figure is the same bytes (PNG carries none by default)
+    metadata = {"Date": None} if fmt == "svg" else {}
+
+    mpl, _ = _matplotlib()
+
     def write(fh: Any) -> None:
-        fig.savefig(fh, format=fmt, dpi=_DPI)
+        with mpl.rc_context({"svg.hashsalt": _RC["svg.hashsalt"]}):
+            fig.savefig(fh, format=fmt, dpi=_DPI, metadata=metadata)
 
     return write_atomically(path, write, binary=True, force=force)
 
@@ -230,9 +249,11 @@ def _draw_spectrum(ax: Any, spectrum: Spectrum, *, overlay: Mapping[str, Any] | 
     ax.set_ylabel(f"Level [{spectrum.units}]")
     xmin, xmax = ax.get_xlim()
     if band is not None:
+        label = "channel bandwidth (stated)"
+        if isinstance(band, Band):
+            band, label = (band.lo_hz, band.hi_hz), band.label
         lo, hi = _pair(band, "channel_band", spectrum.onesided)
-        ax.axvspan(lo / scale, hi / scale, color=PALETTE["channel"], alpha=0.22, lw=0, zorder=1,
-                   label="channel bandwidth (stated)")
+        ax.axvspan(lo / scale, hi / scale, color=PALETTE["channel"], alpha=0.22, lw=0, zorder=1, label=label)
     if overlay:
         unknown = set(overlay) - {"passband_hz", "stopband_hz", "response", "label"}
         if unknown:
@@ -294,7 +315,7 @@ def _figure_legend(fig: Any, axes: Sequence[Any]) -> None:
         for h, lab in zip(*a.get_legend_handles_labels()):
             seen.setdefault(lab, h)
     if len(seen) > 1:
-        fig.legend(list(seen.values()), list(seen.keys()), loc="outside lower center", ncols=min(len(seen), 5),
+        fig.legend(list(seen.values()), list(seen.keys()), loc="outside lower center", ncols=min(len(seen), 4),
                    frameon=False)
 
 
@@ -351,8 +372,9 @@ def plot_stage_spectrum(
         passband edges are dashed lines, the stopband is shaded. ``response``:
         ``(freqs_hz, response_db)`` of the designed filter's measured response
         (relative Hz), drawn on a secondary dB axis. ``label``: legend text for it.
-    channel_band : (low_hz, high_hz) or float, optional
-        The channel's stated bandwidth relative to the centre, shaded.
+    channel_band : (low_hz, high_hz), float or Band, optional
+        The channel's stated bandwidth relative to the centre, shaded (a :class:`Band` carries its own
+        legend text, e.g. for the audio band).
     fmt : {"png", "svg"}
     force : bool, default True
         Overwrite an existing file (False: refuse with OutputExistsError).
@@ -394,7 +416,7 @@ def _build_overview_figure(
     if not spectra:
         raise ParameterError("spectra: nothing to plot; give at least one Spectrum")
     ovl = _per_panel(overlays, spectra, "overlays", (Mapping,))
-    bands = _per_panel(channel_band, spectra, "channel_band", (int, float, np.number))
+    bands = _per_panel(channel_band, spectra, "channel_band", (int, float, np.number, Band))
     ranges = [db_range(s.values_db) for s in spectra]
     span = max(hi - lo for lo, hi in ranges)
     n = len(spectra)
@@ -561,6 +583,8 @@ def _build_waveform_figure(audio: ArrayLike, rate_hz: float, *, title: str) -> F
     x = x.astype(np.float64)
     if not np.all(np.isfinite(x)):
         raise ParameterError("audio: contains NaN or infinite samples")
+    clipped_at = np.flatnonzero(np.abs(x) > 1.0)  # what the 16-bit file holds is clipped at full scale
+    x = np.clip(x, -1.0, 1.0)
     try:
         fs = float(rate_hz)
     except (TypeError, ValueError):
@@ -590,6 +614,9 @@ def _build_waveform_figure(audio: ArrayLike, rate_hz: float, *, title: str) -> F
             ax.plot(tc, x, color=PALETTE["trace"], lw=0.8, label="waveform", zorder=2)
         ax.plot(tc, rms, color=PALETTE["envelope"], lw=1.2, label="± RMS envelope (10 ms)", zorder=3)
         ax.plot(tc, -rms, color=PALETTE["envelope"], lw=1.2, zorder=3)
+        if clipped_at.size:
+            ax.plot(clipped_at / fs, np.sign(x[clipped_at]), ls="none", marker="|", ms=9, mew=1.2,
+                    color=PALETTE["clip"], zorder=4, label=f"clipped at full scale in the file ({clipped_at.size} samples)")
         peak = float(np.max(np.abs(x)))
         lim = 1.0 if peak == 0 else min(1.05, max(peak * 1.15, 1e-6))
         ax.set_ylim(-lim, lim)

@@ -119,11 +119,31 @@ def stage_overlays(receiver) -> dict[str, Any]:
             "stopband_hz": (centre + mid - proto.stopband_hz, centre + mid + proto.stopband_hz),
             "response": (freqs + centre + mid, resp),
         }
+    elif d.polyphase_plan is not None:
+        # the time-domain engine: each decimation stage's own low-pass, on its output spectrum (centred on the
+        # channel filter's centre after the translating first stage), and the channel's edges on input and channel
+        mid = 0.5 * (lo + hi)
+        half = 0.5 * (hi - lo)
+        edge = half + ch.transition
+        for stage in d.polyphase_plan.stages:
+            lp = stage.lowpass
+            freqs, resp = _response(lp.taps, stage.rate_in_hz, 0.5 * stage.rate_out_hz)
+            overlays[f"stage{stage.index + 1}"] = {
+                "passband_hz": (-lp.passband_hz, lp.passband_hz),
+                "stopband_hz": (-lp.stopband_hz, lp.stopband_hz),
+                "response": (freqs, resp),
+                "label": "decimation-stage low-pass (designed)",
+            }
+        overlays["channel"] = {"passband_hz": (lo, hi), "stopband_hz": (mid - edge, mid + edge)}
+        overlays["input"] = {"passband_hz": (centre + lo, centre + hi),
+                             "stopband_hz": (centre + mid - edge, centre + mid + edge)}
+    from .plots import Band
+
     bands["input"] = (centre + lo, centre + hi)
     bands["channel"] = (lo, hi)
     if ch.audio_band:
-        bands["detector"] = tuple(ch.audio_band)
-        bands["audio"] = tuple(ch.audio_band)
+        bands["detector"] = Band(ch.audio_band[0], ch.audio_band[1], "audio band (designed)")
+        bands["audio"] = Band(ch.audio_band[0], ch.audio_band[1], "audio band (designed)")
     return {"overlays": overlays, "bands": bands}
 
 
