@@ -9,7 +9,6 @@ import typer
 
 from ..channel import make_channel
 from ..errors import ParameterError
-from ..jobs import demod_file
 from .app import app
 from .common import ProgressBar, emit_json
 from .options import (
@@ -70,6 +69,8 @@ def demod(
         raise ParameterError(f"--squelch: must be between 0 and 200 dB, got {squelch!r}")
     channel = make_channel(freq=freq, offset=offset, bandwidth=bandwidth, emission=emission, mode=mode,
                            audio_rate=audio_rate, name=Path(output).stem, squelch_db=squelch)
+    from ..jobs import demod_file  # here, not at the top: `iqsift --help` stays fast
+
     with ProgressBar("demod", quiet) as progress:
         result = demod_file(
             capture_path, channel, output, baseband=baseband, report=report, spectra=spectra,

@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import typer
 
-from ..jobs import extract_file
 from .app import app
 from .common import ProgressBar, emit_json
 from .options import (
@@ -44,6 +43,8 @@ def extract_command(
     strict: bool = StrictOption,
 ) -> None:
     """Extract every channel of a plan in one pass: <name>.wav per channel and report.json."""
+    from ..jobs import extract_file  # here, not at the top: `iqsift --help` stays fast
+
     with ProgressBar("extract", quiet) as progress:
         result = extract_file(
             capture_path, plan_path, out_dir, spectra=spectra, plot_format=plot_format, baseband=baseband,

@@ -6,7 +6,6 @@ from typing import Any
 
 import typer
 
-from ..jobs import info_file
 from ..units import format_hz
 from .app import app
 from .common import ProgressBar, emit_json
@@ -33,6 +32,8 @@ def info(
     quiet: bool = QuietOption,
 ) -> None:
     """Describe a capture and measure its levels, DC offset, clipping and IQ imbalance."""
+    from ..jobs import info_file  # here, not at the top: `iqsift --help` stays fast
+
     with ProgressBar("measuring", quiet) as progress:
         result = info_file(capture_path, format=format, rate=rate, center=center, strict=strict,
                            progress=progress).to_dict()

@@ -7,7 +7,6 @@ from typing import Any
 import typer
 
 from ..channel import make_channel
-from ..jobs import measure_file
 from ..units import parse_positive_hz
 from .app import app
 from .common import ProgressBar, emit_json
@@ -59,6 +58,8 @@ def measure_command(
     tone_hz = None if tone is None else parse_positive_hz(tone, "--tone")
     channel = make_channel(freq=freq, offset=offset, bandwidth=bandwidth, emission=emission, mode=mode,
                            audio_rate=audio_rate, name="measured")
+    from ..jobs import measure_file  # here, not at the top: `iqsift --help` stays fast
+
     with ProgressBar("measuring", quiet) as progress:
         result = measure_file(
             capture_path, channel, tone_hz=tone_hz, weighting=weighting, x_db=x_db, threshold_db=threshold,

@@ -103,7 +103,8 @@ def extract_file(
     """Extract every channel of a plan in one pass: ``<name>.wav`` per channel and ``report.json``.
 
     The folder is created if needed (its parent must exist) and removed again if the job fails
-    before writing anything into it. Outputs are checked before any work and committed together.
+    or is interrupted and nothing else was put into it. Outputs are checked before any work and
+    committed together.
 
     Parameters
     ----------
@@ -144,19 +145,13 @@ def extract_file(
             for rx in extractor.receivers:  # before any work: no plot overwritten without force
                 if (folder / "spectra" / _stem(rx)).is_dir():
                     check_stage_plot_folder(folder / "spectra" / _stem(rx), plot_format, force)
-        created = not folder.exists()
-        folder.mkdir(exist_ok=True)
-        try:
-            protect = (*cap.files, *(() if plan_file is None else (plan_file,)))
-            with OutputSet(force=force, protect=protect) as outputs:
-                return _run(extractor, cap, selection, folder, outputs, started,
-                            plan=str(plan_file) if plan_file is not None else plan_obj.source,
-                            baseband=baseband, spectra=spectra, plot_format=plot_format,
-                            nonfinite=nonfinite_policy(allow_nonfinite), progress=progress)
-        except BaseException:
-            if created and not any(folder.iterdir()):
-                folder.rmdir()
-            raise
+        protect = (*cap.files, *(() if plan_file is None else (plan_file,)))
+        with OutputSet(force=force, protect=protect) as outputs:
+            outputs.make_folder(folder)  # removed again, with spectra/<name>/, unless the job finishes
+            return _run(extractor, cap, selection, folder, outputs, started,
+                        plan=str(plan_file) if plan_file is not None else plan_obj.source,
+                        baseband=baseband, spectra=spectra, plot_format=plot_format,
+                        nonfinite=nonfinite_policy(allow_nonfinite), progress=progress)
 
 
 def _stem(rx: Any) -> str:
