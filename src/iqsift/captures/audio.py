@@ -12,7 +12,7 @@ import warnings
 from pathlib import Path
 
 import numpy as np
-import soundfile
+import soundfile  # type: ignore[import-untyped]  # the package publishes no type information
 
 from ..errors import CaptureError, IqsiftWarning, ParameterError
 from .atomic import OutputSet

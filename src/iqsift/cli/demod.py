@@ -26,6 +26,7 @@ from .options import (
     JsonOption,
     ModeOption,
     NonfiniteOption,
+    NoVerifyOption,
     OffsetOption,
     OptStr,
     PlotFormatOption,
@@ -63,6 +64,7 @@ def demod(
     rate: OptStr = RateOption,
     center: OptStr = CenterOption,
     strict: bool = StrictOption,
+    no_verify: bool = NoVerifyOption,
 ) -> None:
     """Demodulate one channel to audio (AM envelope/coherent, USB, LSB, DSB)."""
     if squelch is not None and not (0 <= squelch < 200):
@@ -76,7 +78,7 @@ def demod(
             capture_path, channel, output, baseband=baseband, report=report, spectra=spectra,
             plot_format=plot_format, engine=engine, agc=agc, start=start, duration=duration,
             allow_nonfinite=allow_nonfinite, force=force, progress=progress,
-            format=format, rate=rate, center=center, strict=strict,
+            format=format, rate=rate, center=center, strict=strict, verify=not no_verify,
         ).to_dict()
     if json_out:
         emit_json(result)

@@ -14,6 +14,7 @@ from .options import (
     CenterOption,
     FormatOption,
     JsonOption,
+    NoVerifyOption,
     OptStr,
     QuietOption,
     RateOption,
@@ -29,6 +30,7 @@ def info(
     rate: OptStr = RateOption,
     center: OptStr = CenterOption,
     strict: bool = StrictOption,
+    no_verify: bool = NoVerifyOption,
     quiet: bool = QuietOption,
 ) -> None:
     """Describe a capture and measure its levels, DC offset, clipping and IQ imbalance."""
@@ -36,7 +38,7 @@ def info(
 
     with ProgressBar("measuring", quiet) as progress:
         result = info_file(capture_path, format=format, rate=rate, center=center, strict=strict,
-                           progress=progress).to_dict()
+                           progress=progress, verify=not no_verify).to_dict()
     if json_out:
         emit_json(result)
     else:

@@ -22,6 +22,7 @@ from .options import (
     JsonOption,
     ModeOption,
     NonfiniteOption,
+    NoVerifyOption,
     OffsetOption,
     OptStr,
     QuietOption,
@@ -53,6 +54,7 @@ def measure_command(
     rate: OptStr = RateOption,
     center: OptStr = CenterOption,
     strict: bool = StrictOption,
+    no_verify: bool = NoVerifyOption,
 ) -> None:
     """Measure carrier frequency error and level, modulation depth, SNR/SINAD/THD, bandwidths and activity."""
     tone_hz = None if tone is None else parse_positive_hz(tone, "--tone")
@@ -64,7 +66,7 @@ def measure_command(
         result = measure_file(
             capture_path, channel, tone_hz=tone_hz, weighting=weighting, x_db=x_db, threshold_db=threshold,
             start=start, duration=duration, allow_nonfinite=allow_nonfinite, progress=progress,
-            format=format, rate=rate, center=center, strict=strict,
+            format=format, rate=rate, center=center, strict=strict, verify=not no_verify,
         ).to_dict()
     if json_out:
         emit_json(result)

@@ -19,6 +19,7 @@ from .options import (
     FormatOption,
     JsonOption,
     NonfiniteOption,
+    NoVerifyOption,
     OptStr,
     QuietOption,
     RateOption,
@@ -70,6 +71,7 @@ def survey(
     rate: OptStr = RateOption,
     center: OptStr = CenterOption,
     strict: bool = StrictOption,
+    no_verify: bool = NoVerifyOption,
 ) -> None:
     """Find the emissions in a capture: frequency, level, bandwidth, class; optionally write a channel plan."""
     from ..jobs import survey_file  # here, not at the top: `iqsift --help` stays fast
@@ -81,7 +83,7 @@ def survey(
         result = survey_file(
             capture_path, threshold_db=threshold_db, raster=raster, plan_out=plan_out, resolution_hz=resolution_hz,
             start=start, duration=duration, allow_nonfinite=allow_nonfinite, force=force, progress=progress,
-            format=format, rate=rate, center=center, strict=strict,
+            format=format, rate=rate, center=center, strict=strict, verify=not no_verify,
         )
     report = result.to_dict()
     if json_out:

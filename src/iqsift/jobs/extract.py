@@ -99,6 +99,7 @@ def extract_file(
     rate: str | float | None = None,
     center: str | float | None = None,
     strict: bool = False,
+    verify: bool = True,
 ) -> ExtractResult:
     """Extract every channel of a plan in one pass: ``<name>.wav`` per channel and ``report.json``.
 
@@ -120,7 +121,7 @@ def extract_file(
         Plot file format.
     baseband : bool
         Also write each channel's baseband as SigMF (``<name>.sigmf-meta``/``-data``).
-    start, duration, allow_nonfinite, force, progress, format, rate, center, strict
+    start, duration, allow_nonfinite, force, progress, format, rate, center, strict, verify
         As for :func:`demod_file`.
     """
     check_plot_format(plot_format)
@@ -130,7 +131,8 @@ def extract_file(
     folder = Path(out_dir)
     if folder.exists() and not folder.is_dir():
         raise ParameterError(f"out_dir {folder}: exists and is not a folder", parameters=("out_dir",))
-    with opened(capture, format=format, rate=rate, center=center, strict=strict) as cap:
+    with opened(capture, format=format, rate=rate, center=center, strict=strict,
+                verify=verify) as cap:
         selection = cap.select(start, duration)
         centre = cap.center_for(selection)
         extractor = Extractor(cap.sample_rate_hz, channels_from_plan(plan_obj, centre), center_hz=centre,
