@@ -20,14 +20,16 @@ import contextlib
 import os
 import signal
 import tempfile
+import threading
 from pathlib import Path
+from types import FrameType
 from typing import IO, Any, Callable, Iterator
 
 from ..errors import OutputExistsError, ParameterError
 
 __all__ = ["OutputSet", "check_output_path", "signals_deferred", "write_atomically"]
 
-_HELD_SIGNALS = {signal.SIGINT, signal.SIGTERM}
+_HELD_SIGNALS = (signal.SIGINT, signal.SIGTERM)
 
 
 def _current_umask() -> int:
@@ -43,21 +45,41 @@ _UMASK = _current_umask()
 def signals_deferred() -> Iterator[None]:
     """Hold SIGINT and SIGTERM back while the block runs; a signal that arrived meanwhile acts when it ends.
 
-    Blocking the signals in the operating system (``pthread_sigmask``) keeps Python from running
-    their handlers, so no ``KeyboardInterrupt`` can be raised halfway through the block. A handler
-    already due when the block starts runs before the block does. Where signals cannot be
-    blocked (Windows) the block simply runs.
+    While the block runs, both signals only get noted; afterwards the previous handlers are put
+    back and each noted signal is raised again for them, so a ``KeyboardInterrupt`` (or whatever
+    the handler does) comes after the block, never halfway through it. A handler already due when
+    the block starts runs before it. Python-level handlers are swapped rather than the signals
+    blocked with ``pthread_sigmask``: that blocks them in the calling thread only, and the worker
+    threads numpy's BLAS starts would still take them.
     """
-    if not hasattr(signal, "pthread_sigmask"):  # pragma: no cover - Windows
-        yield
+    if threading.current_thread() is not threading.main_thread():
+        yield  # Python runs signal handlers in the main thread only: nothing can interrupt this one
         return
-    # this first call changes nothing; it returns the mask to restore (and runs any handler already due)
-    previous = signal.pthread_sigmask(signal.SIG_BLOCK, ())
+    noted: list[int] = []
+
+    def note(signum: int, frame: FrameType | None) -> None:
+        noted.append(signum)
+
+    previous: dict[int, Any] = {}
     try:
-        signal.pthread_sigmask(signal.SIG_BLOCK, _HELD_SIGNALS)
+        for held in _HELD_SIGNALS:
+            previous[held] = signal.signal(held, note)  # runs any handler already due first
         yield
     finally:
-        signal.pthread_sigmask(signal.SIG_SETMASK, previous)  # held signals are delivered here
+        for number, handler in previous.items():
+            _put_back(number, signal.SIG_DFL if handler is None else handler)
+        for number in noted:
+            signal.raise_signal(number)  # to the handler just put back (the first that raises ends this)
+
+
+def _put_back(signum: int, handler: Any) -> None:
+    """Restore a signal handler. ``signal.signal`` runs the handlers already due before it changes
+    anything, and one restored a moment ago may raise: then restore this one anyway, and re-raise."""
+    try:
+        signal.signal(signum, handler)
+    except BaseException:
+        signal.signal(signum, handler)
+        raise
 
 
 def check_output_path(path: str | os.PathLike[str], force: bool = False, protect: tuple[Any, ...] = ()) -> Path:

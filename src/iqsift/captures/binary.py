@@ -1,16 +1,18 @@
 """Buffered random access to interleaved binary samples (SigMF data files, raw captures).
 
-Reads use ``numpy.fromfile`` on an open file handle, one block at a time, so
-memory stays bounded by the block size. Memory mapping was rejected: a
-sequential pass over a mapped multi-gigabyte file leaves its pages resident and
-inflates the process's resident set size.
+Reads go straight into a numpy array (``readinto`` on an open file handle), one
+block at a time, so memory stays bounded by the block size. Memory mapping was
+rejected: a sequential pass over a mapped multi-gigabyte file leaves its pages
+resident and inflates the process's resident set size. ``numpy.fromfile`` on the
+handle was dropped: it turns an exception raised meanwhile by a signal handler
+(an interrupt) into a ``TypeError``.
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass
+from io import BufferedReader
 from pathlib import Path
-from typing import BinaryIO
 
 import numpy as np
 
@@ -53,9 +55,9 @@ class BinarySource:
         self.datatype = datatype
         self.runs = list(runs)
         self.checksum = checksum
-        self._file: BinaryIO | None = None
+        self._file: BufferedReader | None = None
 
-    def _handle(self) -> BinaryIO:
+    def _handle(self) -> BufferedReader:
         if self._file is None:
             try:
                 self._file = open(self.path, "rb")  # noqa: SIM115 - closed by close()
@@ -84,17 +86,24 @@ class BinarySource:
         handle = self._handle()
         offset = run.byte_offset + (first - run.sample_start) * dt.sample_bytes
         handle.seek(offset)
+        raw = np.empty(count * dt.components, dtype=dt.component_dtype)
+        buffer = raw.view(np.uint8).data
+        filled = 0
         try:
-            raw = np.fromfile(handle, dtype=dt.component_dtype, count=count * dt.components)
+            while filled < len(buffer):
+                got = handle.readinto(buffer[filled:])
+                if not got:
+                    break
+                filled += got
         except OSError as exc:  # pragma: no cover - I/O failure
             raise CaptureError(f"{self.path}: read error: {exc}") from None
-        if raw.shape[0] != count * dt.components:
+        if filled != len(buffer):
             raise CaptureError(
                 f"{self.path}: expected {count} samples at sample {first}, the file ended after "
-                f"{raw.shape[0] // dt.components}; was it truncated?"
+                f"{filled // dt.sample_bytes}; was it truncated?"
             )
         if checksum is not None:
-            checksum.update(offset, raw.view(np.uint8).data)  # the file's bytes, as read
+            checksum.update(offset, buffer)  # the file's bytes, as read
         return dt.to_complex64(raw)
 
     def close(self) -> None:

@@ -18,7 +18,7 @@ import sys
 import warnings
 from typing import TYPE_CHECKING, Any, TextIO
 
-from .interrupts import Interrupted, raise_on_interrupts
+from .interrupts import Interrupted, ignore_interrupts, raise_on_interrupts
 
 if TYPE_CHECKING:
     from typer import Typer
@@ -46,19 +46,28 @@ def __getattr__(name: str) -> Any:
 
 
 def main(argv: list[str] | None = None) -> int:
-    """Run the CLI with ``argv`` (default: ``sys.argv[1:]``); returns the exit status."""
+    """Run the CLI with ``argv`` (default: ``sys.argv[1:]``); returns the exit status.
+
+    While it runs, SIGINT and SIGTERM stop the command cleanly (status 130 or 143). Afterwards the
+    previous signal handlers are restored, unless ``argv`` is None (the program's own run), when
+    the process is about to exit and further stop signals are ignored.
+    """
     restore = None
     try:
         restore = raise_on_interrupts()  # first: everything after this may be interrupted cleanly
         return _run(list(sys.argv[1:] if argv is None else argv))
     except Interrupted as exc:
+        ignore_interrupts()
         sys.stderr.write(f"iqsift: interrupted by {exc.signal_name}\n")
         return exc.exit_status
     except KeyboardInterrupt:  # SIGINT before the handler above was in place
+        ignore_interrupts()
         sys.stderr.write("iqsift: interrupted by SIGINT\n")
         return 130
     finally:
-        if restore is not None:
+        if argv is None:  # running as the program: the run is over, and no late signal may cut the exit short
+            ignore_interrupts()
+        elif restore is not None:  # called from Python: the caller's handlers come back
             restore()
 
 

@@ -7,20 +7,34 @@ output files stay behind. While a command runs, both signals raise :class:`Inter
 instead: a ``BaseException`` that no ``except Exception`` catches, so it unwinds the job and
 its :class:`~iqsift.captures.OutputSet` removes every temporary file and new folder on the way.
 
+A handler's exception can still be lost: it is raised wherever the interpreter happens to be,
+and some C code clears it (the initialisation of compiled extension modules does; seen while
+scipy loads), or Python reports it as "Exception ignored" (in a weakref callback or a ``__del__``).
+So the process sends itself the same signal again a moment later, and again, until the run has
+stopped and :func:`ignore_interrupts` ends the repeats; and the "Exception ignored" report of a
+lost :class:`Interrupted`, a traceback, is not printed.
+
 Standard only in convention: a process ended by signal N reports status 128 + N (130 for
 SIGINT, 143 for SIGTERM), as POSIX shells show it.
 """
 
 from __future__ import annotations
 
+import os
 import signal
+import sys
 import threading
 from types import FrameType
-from typing import Callable
+from typing import Any, Callable
 
-__all__ = ["Interrupted", "raise_on_interrupts"]
+__all__ = ["Interrupted", "ignore_interrupts", "raise_on_interrupts"]
 
 STOP_SIGNALS = (signal.SIGINT, signal.SIGTERM)
+REPEAT_S = 0.25
+"""Delay before a stop signal is sent again (s): longer than the clean-up an interrupt starts."""
+
+_repeat: list[threading.Timer] = []
+"""The pending repeat of the last stop signal (none or one)."""
 
 
 class Interrupted(BaseException):
@@ -47,12 +61,26 @@ class Interrupted(BaseException):
         return 128 + self.signum
 
 
-def _raise_once(signum: int, frame: FrameType | None) -> None:
-    # the first signal stops the run; later ones are ignored so that the clean-up it
-    # starts (removing temporary files) is not itself cut short
-    for number in STOP_SIGNALS:
-        signal.signal(number, signal.SIG_IGN)
+def _raise(signum: int, frame: FrameType | None) -> None:
+    _cancel_repeat()
+    timer = threading.Timer(REPEAT_S, os.kill, (os.getpid(), signum))
+    timer.daemon = True
+    timer.start()
+    _repeat.append(timer)
     raise Interrupted(signum)
+
+
+def _cancel_repeat() -> None:
+    while _repeat:
+        _repeat.pop().cancel()
+
+
+def ignore_interrupts() -> None:
+    """Ignore further stop signals and end the repeats: the run is stopping, and its last words must not be cut."""
+    _cancel_repeat()
+    if threading.current_thread() is threading.main_thread():
+        for number in STOP_SIGNALS:
+            signal.signal(number, signal.SIG_IGN)
 
 
 def raise_on_interrupts() -> Callable[[], None]:
@@ -63,11 +91,20 @@ def raise_on_interrupts() -> Callable[[], None]:
     if threading.current_thread() is not threading.main_thread():
         return lambda: None
     previous = {number: signal.getsignal(number) for number in STOP_SIGNALS}
+    previous_hook = sys.unraisablehook
+
+    def report_unraisable(unraisable: Any) -> None:
+        if not isinstance(unraisable.exc_value, Interrupted):  # a lost interrupt comes again: no report
+            previous_hook(unraisable)
+
+    sys.unraisablehook = report_unraisable
     for number in STOP_SIGNALS:
-        signal.signal(number, _raise_once)
+        signal.signal(number, _raise)
 
     def restore() -> None:
+        _cancel_repeat()
         for number, handler in previous.items():
-            signal.signal(number, handler if handler is not None else signal.SIG_DFL)
+            signal.signal(number, signal.SIG_DFL if handler is None else handler)
+        sys.unraisablehook = previous_hook
 
     return restore
