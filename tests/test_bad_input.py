@@ -107,9 +107,8 @@ def test_malformed_or_truncated_metadata(run_cli, tmp_path, text, fragment):
 
 
 def test_metadata_disagrees_with_data_size(run_cli, tmp_path):
-    meta = write_sigmf_pair(tmp_path / "d", b"\0" * 400, GOOD_GLOBAL,
-                            captures=[{"core:sample_start": 0}, {"core:sample_start": 500}])
-    assert_one_line_error(run_cli("info", meta), "d.sigmf-meta", "disagrees with data file size", "segment 1")
+    # a capture segment starting past the end of the data is ignored with a warning (SigMF), not refused:
+    # tests/test_integrity.py checks it
     meta = write_sigmf_pair(tmp_path / "a", b"\0" * 400, GOOD_GLOBAL,
                             annotations=[{"core:sample_start": 90, "core:sample_count": 20}])
     assert_one_line_error(run_cli("info", meta), "a.sigmf-meta", "disagrees with data file size", "annotations[0]")

@@ -249,11 +249,11 @@ def _draw_spectrum(ax: Any, spectrum: Spectrum, *, overlay: Mapping[str, Any] | 
     ax.set_ylabel(f"Level [{spectrum.units}]")
     xmin, xmax = ax.get_xlim()
     if band is not None:
-        label = "channel bandwidth (stated)"
+        band_label = "channel bandwidth (stated)"
         if isinstance(band, Band):
-            band, label = (band.lo_hz, band.hi_hz), band.label
+            band, band_label = (band.lo_hz, band.hi_hz), band.label
         lo, hi = _pair(band, "channel_band", spectrum.onesided)
-        ax.axvspan(lo / scale, hi / scale, color=PALETTE["channel"], alpha=0.22, lw=0, zorder=1, label=label)
+        ax.axvspan(lo / scale, hi / scale, color=PALETTE["channel"], alpha=0.22, lw=0, zorder=1, label=band_label)
     if overlay:
         unknown = set(overlay) - {"passband_hz", "stopband_hz", "response", "label"}
         if unknown:

@@ -160,13 +160,19 @@ def write_stage_plots(receiver, out_dir: Path, *, capture_name: str, fmt: str = 
     """Write the stage figures and their data into ``out_dir``; returns the paths.
 
     With ``outputs`` (an :class:`~iqsift.captures.OutputSet`) the files are
-    committed with the job's other outputs; otherwise written directly. The waveform
+    committed with the job's other outputs, and the folders made for them are
+    removed again if the job does not finish; otherwise written directly. The waveform
     plot is drawn from ``audio`` (e.g. kept by an :class:`AudioKeeper`), when given.
     """
     from . import plots
 
     out_dir = Path(out_dir)
-    out_dir.mkdir(parents=True, exist_ok=True)  # callers have checked that the user's folder's parent exists
+    # callers have checked that the user's folder's parent exists; folders made through ``outputs``
+    # are removed again if the job fails or is interrupted
+    if outputs is not None:
+        outputs.make_folder(out_dir, parents=True)
+    else:
+        out_dir.mkdir(parents=True, exist_ok=True)
     spectra = receiver.spectra("density")
     if not spectra:
         return []

@@ -1,9 +1,10 @@
 """Capture files: readers (SigMF, raw interleaved, WAV/FLAC), writers, and statistics."""
 
-from .atomic import OutputSet, check_output_path
+from .atomic import OutputSet, check_output_path, signals_deferred
 from .audio import AudioWriter
 from .capture import DEFAULT_BLOCK_SIZE, Annotation, Capture, SampleRange, Segment
 from .datatypes import ALL_DATATYPES, DataType, parse_datatype
+from .integrity import ChecksumError
 from .open import capture_kind, input_files, open_capture
 from .sigmf import SIGMF_VERSION, SigMFWriter, sigmf_paths
 from .stats import CaptureStats, StatsAccumulator
@@ -14,6 +15,7 @@ __all__ = [
     "AudioWriter",
     "Capture",
     "CaptureStats",
+    "ChecksumError",
     "DEFAULT_BLOCK_SIZE",
     "DataType",
     "OutputSet",
@@ -28,4 +30,5 @@ __all__ = [
     "open_capture",
     "parse_datatype",
     "sigmf_paths",
+    "signals_deferred",
 ]

@@ -1,20 +1,24 @@
 """Buffered random access to interleaved binary samples (SigMF data files, raw captures).
 
-Reads use ``numpy.fromfile`` on an open file handle, one block at a time, so
-memory stays bounded by the block size. Memory mapping was rejected: a
-sequential pass over a mapped multi-gigabyte file leaves its pages resident and
-inflates the process's resident set size.
+Reads go straight into a numpy array (``readinto`` on an open file handle), one
+block at a time, so memory stays bounded by the block size. Memory mapping was
+rejected: a sequential pass over a mapped multi-gigabyte file leaves its pages
+resident and inflates the process's resident set size. ``numpy.fromfile`` on the
+handle was dropped: it turns an exception raised meanwhile by a signal handler
+(an interrupt) into a ``TypeError``.
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass
+from io import BufferedReader
 from pathlib import Path
 
 import numpy as np
 
 from ..errors import CaptureError
 from .datatypes import DataType
+from .integrity import ChecksumPass, RecordedChecksum
 
 __all__ = ["ByteRun", "BinarySource"]
 
@@ -41,15 +45,19 @@ class BinarySource:
     runs : sequence of ByteRun
         Where each run of samples lives in the file; several runs arise from
         SigMF capture segments with ``core:header_bytes`` or from archives.
+    checksum : RecordedChecksum, optional
+        The SHA-512 the metadata records for the dataset (SigMF ``core:sha512``).
     """
 
-    def __init__(self, path: Path, datatype: DataType, runs: list[ByteRun]) -> None:
+    def __init__(self, path: Path, datatype: DataType, runs: list[ByteRun],
+                 checksum: RecordedChecksum | None = None) -> None:
         self.path = Path(path)
         self.datatype = datatype
         self.runs = list(runs)
-        self._file = None
+        self.checksum = checksum
+        self._file: BufferedReader | None = None
 
-    def _handle(self):
+    def _handle(self) -> BufferedReader:
         if self._file is None:
             try:
                 self._file = open(self.path, "rb")  # noqa: SIM115 - closed by close()
@@ -57,8 +65,8 @@ class BinarySource:
                 raise CaptureError(f"{self.path}: cannot open data file: {exc.strerror or exc}") from None
         return self._file
 
-    def read(self, start: int, count: int) -> np.ndarray:
-        """Return ``count`` complex64 samples from sample ``start``."""
+    def read(self, start: int, count: int, checksum: ChecksumPass | None = None) -> np.ndarray:
+        """Return ``count`` complex64 samples from sample ``start``; the bytes read go to ``checksum`` too."""
         parts = []
         position, stop = start, start + count
         for run in self.runs:
@@ -67,25 +75,35 @@ class BinarySource:
                 continue
             first = max(position, run.sample_start)
             last = min(stop, run_stop)
-            parts.append(self._read_run(run, first, last - first))
+            parts.append(self._read_run(run, first, last - first, checksum))
             position = last
         if not parts:
             return np.zeros(0, np.complex64)
         return parts[0] if len(parts) == 1 else np.concatenate(parts)
 
-    def _read_run(self, run: ByteRun, first: int, count: int) -> np.ndarray:
+    def _read_run(self, run: ByteRun, first: int, count: int, checksum: ChecksumPass | None) -> np.ndarray:
         dt = self.datatype
         handle = self._handle()
-        handle.seek(run.byte_offset + (first - run.sample_start) * dt.sample_bytes)
+        offset = run.byte_offset + (first - run.sample_start) * dt.sample_bytes
+        handle.seek(offset)
+        raw = np.empty(count * dt.components, dtype=dt.component_dtype)
+        buffer = raw.view(np.uint8).data
+        filled = 0
         try:
-            raw = np.fromfile(handle, dtype=dt.component_dtype, count=count * dt.components)
+            while filled < len(buffer):
+                got = handle.readinto(buffer[filled:])
+                if not got:
+                    break
+                filled += got
         except OSError as exc:  # pragma: no cover - I/O failure
             raise CaptureError(f"{self.path}: read error: {exc}") from None
-        if raw.shape[0] != count * dt.components:
+        if filled != len(buffer):
             raise CaptureError(
                 f"{self.path}: expected {count} samples at sample {first}, the file ended after "
-                f"{raw.shape[0] // dt.components}; was it truncated?"
+                f"{filled // dt.sample_bytes}; was it truncated?"
             )
+        if checksum is not None:
+            checksum.update(offset, buffer)  # the file's bytes, as read
         return dt.to_complex64(raw)
 
     def close(self) -> None:

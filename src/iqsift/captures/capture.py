@@ -9,15 +9,18 @@ samples with a zero imaginary part and ``is_complex == False``.
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, Iterator, Protocol
+from typing import Any, Callable, Iterator, Protocol
 
 import numpy as np
 
 from ..errors import CaptureError, ParameterError
 from ..units import TimeSpec, parse_time
+from .binary import BinarySource
+from .integrity import ChecksumPass
 
 __all__ = ["Capture", "Segment", "Annotation", "SampleRange", "DEFAULT_BLOCK_SIZE"]
 
@@ -142,6 +145,9 @@ class Capture:
         Annotations from the metadata.
     metadata : dict
         The global metadata as read (SigMF ``global`` object, or a summary).
+    verify : bool
+        Check the data against the checksum its metadata records (SigMF ``core:sha512``) on every
+        pass of :meth:`blocks` over the whole capture. A capture without one is never checked.
     """
 
     def __init__(
@@ -159,6 +165,7 @@ class Capture:
         metadata: dict[str, Any] | None = None,
         clip_high: float = 1.0,
         can_hold_nonfinite: bool = True,
+        verify: bool = True,
     ) -> None:
         self.path = Path(path)
         self._source = source
@@ -172,6 +179,7 @@ class Capture:
         self.metadata = dict(metadata or {})
         self.clip_high = float(clip_high)
         self.can_hold_nonfinite = bool(can_hold_nonfinite)
+        self.verify = bool(verify)
 
     # -- metadata -------------------------------------------------------
     @property
@@ -315,12 +323,19 @@ class Capture:
             datatypes): raise a :class:`CaptureError` naming the first one,
             replace them by 0, or pass them through.
 
+        When the blocks cover the whole capture and :attr:`verify` is set, the data's
+        SHA-512 is computed from the bytes as they are read and compared with the one the
+        metadata records once the last block has been handed out: a mismatch raises
+        instead of ending the iteration, so a job stops before committing what it made.
+
         Raises
         ------
         ParameterError
             For an invalid range or option.
         CaptureError
             For non-finite samples under ``nonfinite="error"``, or a read error.
+        ChecksumError
+            After the last block, if the data does not match its recorded checksum.
         """
         if block_size < 1:
             raise ParameterError(f"block_size: must be >= 1, got {block_size}")
@@ -332,11 +347,35 @@ class Capture:
                 f"{self.path}: samples {start}..{start + count} are outside the capture (0..{self.samples})"
             )
         check = nonfinite != "keep" and self.can_hold_nonfinite
+        read, checksum = self._reader(start, count)
+        try:
+            yield from self._read_blocks(read, block_size, start, count, nonfinite, check)
+            if checksum is not None:
+                checksum.finish()
+        finally:
+            if checksum is not None:
+                checksum.close()
+
+    def _reader(self, start: int, count: int) -> tuple[Callable[[int, int], np.ndarray], ChecksumPass | None]:
+        """How to read ``count`` samples from ``start``: plainly, or through a checksum pass.
+
+        Only a pass over the whole capture is checked: a part of the data says nothing about
+        the checksum of the whole.
+        """
+        source = self._source
+        if (self.verify and isinstance(source, BinarySource) and source.checksum is not None
+                and start == 0 and count == self.samples):
+            checksum = source.checksum.start()
+            return functools.partial(source.read, checksum=checksum), checksum
+        return source.read, None
+
+    def _read_blocks(self, read: Callable[[int, int], np.ndarray], block_size: int, start: int, count: int,
+                     nonfinite: str, check: bool) -> Iterator[np.ndarray]:
         position = start
         stop = start + count
         while position < stop:
             n = min(block_size, stop - position)
-            block = self._source.read(position, n)
+            block = read(position, n)
             if block.shape[0] != n:
                 raise CaptureError(
                     f"{self.path}: expected {n} samples at sample {position}, read {block.shape[0]}; "

@@ -130,10 +130,10 @@ class DataType:
         """
         samples = np.asarray(samples)
         if self.is_complex:
-            values = np.empty((samples.shape[0], 2), dtype=np.float64)
-            values[:, 0] = samples.real
-            values[:, 1] = samples.imag if np.iscomplexobj(samples) else 0.0
-            values = values.reshape(-1)
+            pairs = np.empty((samples.shape[0], 2), dtype=np.float64)
+            pairs[:, 0] = samples.real
+            pairs[:, 1] = samples.imag if np.iscomplexobj(samples) else 0.0
+            values: np.ndarray = pairs.reshape(-1)
         else:
             values = np.asarray(samples.real if np.iscomplexobj(samples) else samples, dtype=np.float64)
         if self.kind == "f":

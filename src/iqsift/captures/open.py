@@ -44,6 +44,7 @@ def open_capture(
     rate: float | str | None = None,
     center: float | str | None = None,
     strict: bool = False,
+    verify: bool = True,
 ) -> Capture:
     """Open a capture: SigMF, SigMF archive, WAV/FLAC, or raw interleaved samples.
 
@@ -62,6 +63,10 @@ def open_capture(
         Centre frequency (Hz); overrides the recorded one.
     strict : bool
         Refuse a data size that is not a whole number of samples.
+    verify : bool
+        Check a SigMF recording's data against its ``core:sha512`` on every pass
+        over the whole capture (see :attr:`Capture.verify`); other formats record
+        no checksum.
 
     Raises
     ------
@@ -81,7 +86,7 @@ def open_capture(
         # a missing file of the pair is reported by the reader, naming the missing one
         if path.is_dir():
             raise CaptureError(f"{path}: is a directory, not a capture file")
-        return read_sigmf(path, rate=rate_hz, center=center_hz, strict=strict)
+        return read_sigmf(path, rate=rate_hz, center=center_hz, strict=strict, verify=verify)
     if not path.exists():
         raise CaptureError(f"{path}: no such file")
     if path.is_dir():
@@ -90,7 +95,7 @@ def open_capture(
         if format is not None:
             raise ParameterError(f"{path}: format applies to raw files only; a SigMF archive states its own datatype",
                                  parameters=("format",))
-        return read_sigmf_archive(path, rate=rate_hz, center=center_hz, strict=strict)
+        return read_sigmf_archive(path, rate=rate_hz, center=center_hz, strict=strict, verify=verify)
     if kind == "audio":
         if format is not None:
             raise ParameterError(f"{path}: format applies to raw files only; WAV/FLAC files state their own sample type",

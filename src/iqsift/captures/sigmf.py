@@ -21,7 +21,7 @@ import os
 import tarfile
 import warnings
 from pathlib import Path
-from typing import Any
+from typing import Any, overload
 
 import numpy as np
 
@@ -31,6 +31,7 @@ from .atomic import OutputSet
 from .binary import BinarySource, ByteRun
 from .capture import Annotation, Capture, Segment, check_sample_rate
 from .datatypes import parse_datatype
+from .integrity import RecordedChecksum
 
 __all__ = ["read_sigmf", "read_sigmf_archive", "SigMFWriter", "sigmf_paths", "SIGMF_VERSION"]
 
@@ -74,7 +75,11 @@ def _finite_number(value: Any) -> bool:
     return not isinstance(value, bool) and isinstance(value, (int, float)) and math.isfinite(value)
 
 
-def _int_field(obj: dict, key: str, where: str, default: int | None = None) -> int | None:
+@overload
+def _int_field(obj: dict[str, Any], key: str, where: str, default: int) -> int: ...
+@overload
+def _int_field(obj: dict[str, Any], key: str, where: str, default: None = None) -> int | None: ...
+def _int_field(obj: dict[str, Any], key: str, where: str, default: int | None = None) -> int | None:
     value = obj.get(key, default)
     if value is None:
         return None
@@ -116,7 +121,8 @@ def _parse_meta(
     captures = meta.get("captures", [])
     if not isinstance(captures, list) or not all(isinstance(c, dict) for c in captures):
         raise CaptureError(f"{where}: 'captures' must be a list of objects")
-    starts, headers = [], []
+    starts: list[int] = []
+    headers: list[int] = []
     for i, cap in enumerate(captures):
         start = _int_field(cap, "core:sample_start", f"{where}: captures[{i}]", 0)
         if starts and start <= starts[-1]:
@@ -151,6 +157,7 @@ def _parse_meta(
             raise CaptureError(message + " and segments carry header bytes; cannot tell where the tail is")
         warnings.warn(message + f"; the last {tail} bytes are ignored", IqsiftWarning)
 
+    captures, starts, headers = _drop_segments_past_end(captures, starts, headers, samples, where)
     if not captures:
         captures, starts, headers = [{}], [0], [0]
     elif starts[0] > 0:
@@ -158,12 +165,6 @@ def _parse_meta(
         captures, starts, headers = [{}] + list(captures), [0] + starts, [0] + headers
     segments, runs = [], []
     byte = 0
-    for i, start in enumerate(starts):
-        if start >= samples:
-            raise CaptureError(
-                f"{where}: metadata disagrees with data file size: capture segment {i} starts at sample "
-                f"{start} but the data file holds {samples} samples"
-            )
     for i, (cap, start) in enumerate(zip(captures, starts)):
         stop = starts[i + 1] if i + 1 < len(starts) else samples
         byte += headers[i]
@@ -184,26 +185,26 @@ def _parse_meta(
     for i, ann in enumerate(raw_annotations):
         if not isinstance(ann, dict):
             raise CaptureError(f"{where}: annotations[{i}] must be an object")
-        start = _int_field(ann, "core:sample_start", f"{where}: annotations[{i}]")
-        if start is None:
+        ann_start = _int_field(ann, "core:sample_start", f"{where}: annotations[{i}]")
+        if ann_start is None:
             raise CaptureError(f"{where}: annotations[{i}] has no core:sample_start")
-        count = _int_field(ann, "core:sample_count", f"{where}: annotations[{i}]")
+        ann_count = _int_field(ann, "core:sample_count", f"{where}: annotations[{i}]")
         for key in ("core:freq_lower_edge", "core:freq_upper_edge"):
             if key in ann and not _finite_number(ann[key]):
                 raise CaptureError(f"{where}: annotations[{i}] {key} must be a finite number (Hz), got {ann[key]!r}")
         for key in ("core:label", "core:comment", "core:generator"):
             if key in ann and not isinstance(ann[key], str):
                 raise CaptureError(f"{where}: annotations[{i}] {key} must be text, got {ann[key]!r}")
-        end = start + (count or 0)
-        if start > samples or end > samples:
+        end = ann_start + (ann_count or 0)
+        if ann_start > samples or end > samples:
             raise CaptureError(
                 f"{where}: metadata disagrees with data file size: annotations[{i}] covers samples "
-                f"{start}..{end} but the data file holds {samples} samples"
+                f"{ann_start}..{end} but the data file holds {samples} samples"
             )
         annotations.append(
             Annotation(
-                start,
-                count,
+                ann_start,
+                ann_count,
                 ann.get("core:freq_lower_edge"),
                 ann.get("core:freq_upper_edge"),
                 ann.get("core:label"),
@@ -223,6 +224,28 @@ def _parse_meta(
     }
 
 
+def _drop_segments_past_end(
+    captures: list[dict[str, Any]], starts: list[int], headers: list[int], samples: int, where: str
+) -> tuple[list[dict[str, Any]], list[int], list[int]]:
+    """The capture segments without those starting past the last sample, each dropped with a warning.
+
+    SigMF: a segment whose ``core:sample_start`` lies beyond the end of the dataset holds no samples
+    and is ignored. One that also claims header bytes makes the data's layout unknowable: refused.
+    """
+    kept = sum(1 for start in starts if start < samples)  # starts ascend: the ones past the end come last
+    for i in range(kept, len(starts)):
+        if headers[i]:
+            raise CaptureError(
+                f"{where}: captures[{i}] core:sample_start {starts[i]} lies past the end of the data "
+                f"({samples} samples) yet has core:header_bytes {headers[i]}; cannot tell where the samples are"
+            )
+        warnings.warn(
+            f"{where}: captures[{i}] core:sample_start {starts[i]} lies past the end of the data "
+            f"({samples} samples); the segment is ignored", IqsiftWarning
+        )
+    return captures[:kept], starts[:kept], headers[:kept]
+
+
 def _apply_center(segments: tuple[Segment, ...], center: float | None, where: str) -> tuple[Segment, ...]:
     if center is None:
         return segments
@@ -238,6 +261,7 @@ def read_sigmf(
     rate: float | None = None,
     center: float | None = None,
     strict: bool = False,
+    verify: bool = True,
 ) -> Capture:
     """Open a SigMF recording given its ``.sigmf-meta`` or ``.sigmf-data`` file.
 
@@ -252,6 +276,9 @@ def read_sigmf(
     strict : bool
         Refuse a data file that is not a whole number of samples (default:
         warn and ignore the partial tail).
+    verify : bool
+        Check the data against ``core:sha512`` on every pass over the whole
+        recording (see :attr:`Capture.verify`).
 
     Raises
     ------
@@ -278,11 +305,15 @@ def read_sigmf(
         raise CaptureError(f"{data_path}: SigMF data file not found (named by {meta_path.name})")
     if data_path.is_dir():
         raise CaptureError(f"{data_path}: is a directory, not a data file")
-    parsed = _parse_meta(meta, str(meta_path), data_path.stat().st_size, rate=rate, strict=strict)
+    data_bytes = data_path.stat().st_size
+    parsed = _parse_meta(meta, str(meta_path), data_bytes, rate=rate, strict=strict)
     dt = parsed["datatype"]
+    checksum = None
+    if "core:sha512" in glob:
+        checksum = RecordedChecksum(glob["core:sha512"], data_path, str(meta_path), 0, data_bytes)
     return Capture(
         meta_path,
-        BinarySource(data_path, dt, parsed["runs"]),
+        BinarySource(data_path, dt, parsed["runs"], checksum),
         format="sigmf",
         datatype=dt.name,
         sample_rate_hz=parsed["rate"],
@@ -293,6 +324,7 @@ def read_sigmf(
         metadata=parsed["global"],
         clip_high=dt.clip_high,
         can_hold_nonfinite=dt.kind == "f",
+        verify=verify,
     )
 
 
@@ -302,10 +334,12 @@ def read_sigmf_archive(
     rate: float | None = None,
     center: float | None = None,
     strict: bool = False,
+    verify: bool = True,
 ) -> Capture:
     """Open a ``.sigmf`` archive (uncompressed tar holding one recording).
 
-    The samples are read in place from the tar file (no extraction).
+    The samples are read in place from the tar file (no extraction); the options are those of
+    :func:`read_sigmf`.
     """
     path = Path(path)
     try:
@@ -317,7 +351,10 @@ def read_sigmf_archive(
                     f"{path}: archive holds {len(metas)} .sigmf-meta files; iqsift reads archives with exactly one"
                 )
             meta_member = metas[0]
-            meta = _load_meta_text(tar.extractfile(meta_member).read(), f"{path}:{meta_member.name}")
+            meta_file = tar.extractfile(meta_member)
+            if meta_file is None:  # pragma: no cover - a regular member always has contents
+                raise CaptureError(f"{path}: cannot read {meta_member.name} in the archive")
+            meta = _load_meta_text(meta_file.read(), f"{path}:{meta_member.name}")
             data_name = meta_member.name[: -len(".sigmf-meta")] + ".sigmf-data"
             data = [m for m in members if m.name == data_name]
             if not data:
@@ -329,9 +366,13 @@ def read_sigmf_archive(
     parsed = _parse_meta(meta, where, data_member.size, rate=rate, strict=strict)
     dt = parsed["datatype"]
     runs = [ByteRun(r.sample_start, r.sample_count, r.byte_offset + data_member.offset_data) for r in parsed["runs"]]
+    checksum = None
+    if "core:sha512" in meta["global"]:
+        begin = data_member.offset_data
+        checksum = RecordedChecksum(meta["global"]["core:sha512"], path, where, begin, begin + data_member.size)
     return Capture(
         path,
-        BinarySource(path, dt, runs),
+        BinarySource(path, dt, runs, checksum),
         format="sigmf-archive",
         datatype=dt.name,
         sample_rate_hz=parsed["rate"],
@@ -342,6 +383,7 @@ def read_sigmf_archive(
         metadata=parsed["global"],
         clip_high=dt.clip_high,
         can_hold_nonfinite=dt.kind == "f",
+        verify=verify,
     )
 
 

@@ -6,13 +6,13 @@ import sys
 import time
 from typing import Any, Callable
 
-from ..jsonable import dumps
-
 __all__ = ["emit_json", "Progress", "ProgressBar"]
 
 
 def emit_json(obj: Any) -> None:
     """Print ``obj`` as indented JSON on stdout."""
+    from ..jsonable import dumps  # numpy-aware: imported when there is something to print
+
     sys.stdout.write(dumps(obj))
 
 

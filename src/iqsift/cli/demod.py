@@ -9,7 +9,6 @@ import typer
 
 from ..channel import make_channel
 from ..errors import ParameterError
-from ..jobs import demod_file
 from .app import app
 from .common import ProgressBar, emit_json
 from .options import (
@@ -27,6 +26,7 @@ from .options import (
     JsonOption,
     ModeOption,
     NonfiniteOption,
+    NoVerifyOption,
     OffsetOption,
     OptStr,
     PlotFormatOption,
@@ -64,18 +64,21 @@ def demod(
     rate: OptStr = RateOption,
     center: OptStr = CenterOption,
     strict: bool = StrictOption,
+    no_verify: bool = NoVerifyOption,
 ) -> None:
     """Demodulate one channel to audio (AM envelope/coherent, USB, LSB, DSB)."""
     if squelch is not None and not (0 <= squelch < 200):
         raise ParameterError(f"--squelch: must be between 0 and 200 dB, got {squelch!r}")
     channel = make_channel(freq=freq, offset=offset, bandwidth=bandwidth, emission=emission, mode=mode,
                            audio_rate=audio_rate, name=Path(output).stem, squelch_db=squelch)
+    from ..jobs import demod_file  # here, not at the top: `iqsift --help` stays fast
+
     with ProgressBar("demod", quiet) as progress:
         result = demod_file(
             capture_path, channel, output, baseband=baseband, report=report, spectra=spectra,
             plot_format=plot_format, engine=engine, agc=agc, start=start, duration=duration,
             allow_nonfinite=allow_nonfinite, force=force, progress=progress,
-            format=format, rate=rate, center=center, strict=strict,
+            format=format, rate=rate, center=center, strict=strict, verify=not no_verify,
         ).to_dict()
     if json_out:
         emit_json(result)

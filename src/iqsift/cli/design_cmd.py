@@ -5,7 +5,6 @@ from __future__ import annotations
 import typer
 
 from ..channel import make_channel
-from ..jobs import design_report
 from ..units import parse_positive_hz
 from .app import app
 from .common import emit_json
@@ -32,6 +31,8 @@ def design_command(
     fs = parse_positive_hz(rate, "--rate")
     channel = make_channel(offset=offset, bandwidth=bandwidth, emission=emission, mode=mode,
                            audio_rate=audio_rate, transition=transition)
+    from ..jobs import design_report  # here, not at the top: `iqsift --help` stays fast
+
     result = design_report(fs, channel, real_input=real, engine=engine, ripple_db=ripple, atten_db=atten).to_dict()
     if json_out:
         emit_json(result)

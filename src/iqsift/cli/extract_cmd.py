@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import typer
 
-from ..jobs import extract_file
 from .app import app
 from .common import ProgressBar, emit_json
 from .options import (
@@ -15,6 +14,7 @@ from .options import (
     FormatOption,
     JsonOption,
     NonfiniteOption,
+    NoVerifyOption,
     OptStr,
     PlotFormatOption,
     QuietOption,
@@ -42,13 +42,16 @@ def extract_command(
     rate: OptStr = RateOption,
     center: OptStr = CenterOption,
     strict: bool = StrictOption,
+    no_verify: bool = NoVerifyOption,
 ) -> None:
     """Extract every channel of a plan in one pass: <name>.wav per channel and report.json."""
+    from ..jobs import extract_file  # here, not at the top: `iqsift --help` stays fast
+
     with ProgressBar("extract", quiet) as progress:
         result = extract_file(
             capture_path, plan_path, out_dir, spectra=spectra, plot_format=plot_format, baseband=baseband,
             start=start, duration=duration, allow_nonfinite=allow_nonfinite, force=force, progress=progress,
-            format=format, rate=rate, center=center, strict=strict,
+            format=format, rate=rate, center=center, strict=strict, verify=not no_verify,
         ).to_dict()
     if json_out:
         emit_json(result)

@@ -6,7 +6,6 @@ from typing import Any
 
 import typer
 
-from ..jobs import info_file
 from ..units import format_hz
 from .app import app
 from .common import ProgressBar, emit_json
@@ -15,6 +14,7 @@ from .options import (
     CenterOption,
     FormatOption,
     JsonOption,
+    NoVerifyOption,
     OptStr,
     QuietOption,
     RateOption,
@@ -30,12 +30,15 @@ def info(
     rate: OptStr = RateOption,
     center: OptStr = CenterOption,
     strict: bool = StrictOption,
+    no_verify: bool = NoVerifyOption,
     quiet: bool = QuietOption,
 ) -> None:
     """Describe a capture and measure its levels, DC offset, clipping and IQ imbalance."""
+    from ..jobs import info_file  # here, not at the top: `iqsift --help` stays fast
+
     with ProgressBar("measuring", quiet) as progress:
         result = info_file(capture_path, format=format, rate=rate, center=center, strict=strict,
-                           progress=progress).to_dict()
+                           progress=progress, verify=not no_verify).to_dict()
     if json_out:
         emit_json(result)
     else:

@@ -7,7 +7,6 @@ from typing import Any
 import typer
 
 from ..channel import make_channel
-from ..jobs import measure_file
 from ..units import parse_positive_hz
 from .app import app
 from .common import ProgressBar, emit_json
@@ -23,6 +22,7 @@ from .options import (
     JsonOption,
     ModeOption,
     NonfiniteOption,
+    NoVerifyOption,
     OffsetOption,
     OptStr,
     QuietOption,
@@ -54,16 +54,19 @@ def measure_command(
     rate: OptStr = RateOption,
     center: OptStr = CenterOption,
     strict: bool = StrictOption,
+    no_verify: bool = NoVerifyOption,
 ) -> None:
     """Measure carrier frequency error and level, modulation depth, SNR/SINAD/THD, bandwidths and activity."""
     tone_hz = None if tone is None else parse_positive_hz(tone, "--tone")
     channel = make_channel(freq=freq, offset=offset, bandwidth=bandwidth, emission=emission, mode=mode,
                            audio_rate=audio_rate, name="measured")
+    from ..jobs import measure_file  # here, not at the top: `iqsift --help` stays fast
+
     with ProgressBar("measuring", quiet) as progress:
         result = measure_file(
             capture_path, channel, tone_hz=tone_hz, weighting=weighting, x_db=x_db, threshold_db=threshold,
             start=start, duration=duration, allow_nonfinite=allow_nonfinite, progress=progress,
-            format=format, rate=rate, center=center, strict=strict,
+            format=format, rate=rate, center=center, strict=strict, verify=not no_verify,
         ).to_dict()
     if json_out:
         emit_json(result)

@@ -12,7 +12,7 @@ from typing import Optional
 
 import typer
 
-__all__ = ["FLAGS", "in_flag_words", "OptStr"]
+__all__ = ["FLAGS", "PHRASES", "in_flag_words", "OptStr"]
 
 OptStr = Optional[str]
 
@@ -27,6 +27,11 @@ StrictOption = typer.Option(False, "--strict", help="Refuse a data file that is 
 StartOption = typer.Option(None, "--start", help="Start time in s (or samples: 48000sa).")
 DurationOption = typer.Option(None, "--duration", help="Duration in s (or samples: 48000sa).")
 NonfiniteOption = typer.Option(False, "--allow-nonfinite", help="Replace NaN/Inf samples by 0 instead of refusing.")
+NoVerifyOption = typer.Option(
+    False, "--no-verify",
+    help="Do not check the data against the SHA-512 its SigMF metadata records (core:sha512). The check runs "
+         "while the whole capture streams through; it is skipped anyway when --start/--duration select a part.",
+)
 
 # -- output and terminal ------------------------------------------------------------------------
 JsonOption = typer.Option(False, "--json", help="Print a machine-readable JSON result on stdout.")
@@ -76,6 +81,11 @@ FLAGS: dict[str, str] = {
 }
 """Python parameter name -> the flag that sets it."""
 
+PHRASES: dict[str, str] = {
+    "verify=False": "--no-verify",
+}
+"""Library phrases -> the flag that says the same (a boolean parameter whose flag is its negation)."""
+
 _LEADING_NAME = re.compile(r"^([a-z][a-z0-9_]*)(?=[: ])")
 
 
@@ -83,8 +93,11 @@ def in_flag_words(message: str, parameters: tuple[str, ...] = ()) -> str:
     """``message`` with the Python parameter names it speaks of written as flags.
 
     The names are those listed in ``parameters`` plus a leading ``name:`` (the convention of
-    iqsift's parameter errors); only names that have a flag are rewritten.
+    iqsift's parameter errors); only names that have a flag are rewritten. The phrases of
+    :data:`PHRASES` (``verify=False``) are rewritten wherever they appear.
     """
+    for phrase, flag in PHRASES.items():
+        message = message.replace(phrase, flag)
     names = set(parameters)
     lead = _LEADING_NAME.match(message)
     if lead:

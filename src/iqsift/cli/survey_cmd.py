@@ -8,8 +8,6 @@ from typing import Any
 import typer
 
 from ..errors import ParameterError
-from ..jobs import survey_file
-from ..survey import DEFAULT_THRESHOLD_DB
 from ..units import format_hz, parse_positive_hz
 from .app import app
 from .common import ProgressBar, emit_json
@@ -21,6 +19,7 @@ from .options import (
     FormatOption,
     JsonOption,
     NonfiniteOption,
+    NoVerifyOption,
     OptStr,
     QuietOption,
     RateOption,
@@ -28,7 +27,11 @@ from .options import (
     StrictOption,
 )
 
-__all__ = ["survey", "format_survey", "parse_threshold"]
+__all__ = ["survey", "format_survey", "parse_threshold", "SURVEY_THRESHOLD_DB"]
+
+SURVEY_THRESHOLD_DB = 10.0
+"""The default of ``--threshold`` as the help shows it: :data:`iqsift.survey.DEFAULT_THRESHOLD_DB`, written out
+here because importing the survey package to print the help would load numpy and scipy (a test keeps the two equal)."""
 
 
 def parse_threshold(text: str) -> float:
@@ -45,9 +48,9 @@ def parse_threshold(text: str) -> float:
 @app.command("survey")
 def survey(
     capture_path: str = CaptureArgument,
-    threshold: str = typer.Option(
-        str(DEFAULT_THRESHOLD_DB).rstrip("0").rstrip("."), "--threshold", "-t",
-        help="Detection threshold in dB above the local noise floor (3 to 100).",
+    threshold: OptStr = typer.Option(
+        None, "--threshold", "-t",
+        help=f"Detection threshold in dB above the local noise floor (3 to 100; default {SURVEY_THRESHOLD_DB:g}).",
     ),
     raster: OptStr = typer.Option(
         None, "--raster", help="Snap carriers to a channel raster: 25k, 8.33k (aeronautical, with ICAO names), 9k, 10k."
@@ -68,15 +71,19 @@ def survey(
     rate: OptStr = RateOption,
     center: OptStr = CenterOption,
     strict: bool = StrictOption,
+    no_verify: bool = NoVerifyOption,
 ) -> None:
     """Find the emissions in a capture: frequency, level, bandwidth, class; optionally write a channel plan."""
-    threshold_db = parse_threshold(threshold)
+    from ..jobs import survey_file  # here, not at the top: `iqsift --help` stays fast
+    from ..survey import DEFAULT_THRESHOLD_DB
+
+    threshold_db = DEFAULT_THRESHOLD_DB if threshold is None else parse_threshold(threshold)
     resolution_hz = parse_positive_hz(resolution, "--resolution") if resolution is not None else None
     with ProgressBar("survey", quiet) as progress:
         result = survey_file(
             capture_path, threshold_db=threshold_db, raster=raster, plan_out=plan_out, resolution_hz=resolution_hz,
             start=start, duration=duration, allow_nonfinite=allow_nonfinite, force=force, progress=progress,
-            format=format, rate=rate, center=center, strict=strict,
+            format=format, rate=rate, center=center, strict=strict, verify=not no_verify,
         )
     report = result.to_dict()
     if json_out:

@@ -6,7 +6,6 @@ from typing import Any
 
 import typer
 
-from ..jobs import synth_file
 from ..units import format_hz
 from .app import app
 from .common import ProgressBar, emit_json
@@ -38,6 +37,8 @@ def synth(
     quiet: bool = QuietOption,
 ) -> None:
     """Write a synthetic capture from an invented scenario: SigMF recording plus <stem>.truth.json."""
+    from ..jobs import synth_file  # here, not at the top: `iqsift --help` stays fast
+
     with ProgressBar("synthesising", quiet or json_out) as progress:
         result = synth_file(scenario_path, output, force=force, progress=progress).to_dict()
     if json_out:

@@ -54,8 +54,12 @@ def opened(
     rate: str | float | None = None,
     center: str | float | None = None,
     strict: bool = False,
+    verify: bool = True,
 ) -> Iterator[Capture]:
     """The capture, opened here (and closed on exit) when given as a path; as it is when already open.
+
+    With ``verify`` false the capture's recorded checksum is not checked (see
+    :attr:`~iqsift.captures.Capture.verify`); an already opened capture gets its own setting back on exit.
 
     Raises
     ------
@@ -67,9 +71,15 @@ def opened(
         given = [name for name, value in (("format", format), ("rate", rate), ("center", center)) if value is not None]
         if given:
             raise ParameterError(f"{', '.join(given)}: only for a capture given by path; {capture.path} is already open")
-        yield capture
+        own_setting = capture.verify
+        capture.verify = own_setting and verify
+        try:
+            yield capture
+        finally:
+            capture.verify = own_setting
         return
-    with open_capture(capture, format=format, rate=rate, center=center, strict=strict) as opened_capture:
+    with open_capture(capture, format=format, rate=rate, center=center, strict=strict,
+                      verify=verify) as opened_capture:
         yield opened_capture
 
 

@@ -104,6 +104,7 @@ def demod_file(
     rate: str | float | None = None,
     center: str | float | None = None,
     strict: bool = False,
+    verify: bool = True,
 ) -> DemodResult:
     """Demodulate one channel of a capture to a WAV/FLAC file.
 
@@ -141,10 +142,15 @@ def demod_file(
         Called after each block with the samples processed and the total.
     format, rate, center, strict
         How to read a capture given by path (see :func:`iqsift.open_capture`).
+    verify : bool
+        Check a SigMF capture's data against its ``core:sha512`` while reading it (when the whole
+        capture is read; a part selected by ``start``/``duration`` is not checked). On a mismatch
+        :class:`~iqsift.captures.ChecksumError` is raised and nothing is written.
     """
     check_plot_format(plot_format)
     started = time.perf_counter()
-    with opened(capture, format=format, rate=rate, center=center, strict=strict) as cap:
+    with opened(capture, format=format, rate=rate, center=center, strict=strict,
+                verify=verify) as cap:
         selection = cap.select(start, duration)
         receiver = Receiver.for_capture(cap, channel, selection, engine=engine, agc=agc, spectra=bool(spectra))
         spectra_dir = Path(spectra) if spectra else None

@@ -119,11 +119,13 @@ def extract_file(
     rate: str | float | None = None,
     center: str | float | None = None,
     strict: bool = False,
+    verify: bool = True,
 ) -> ExtractResult:
     """Extract every channel of a plan in one pass: ``<name>.wav`` per channel and ``report.json``.
 
     The folder is created if needed (its parent must exist) and removed again if the job fails
-    before writing anything into it. Outputs are checked before any work and committed together.
+    or is interrupted and nothing else was put into it. Outputs are checked before any work and
+    committed together.
 
     Parameters
     ----------
@@ -139,7 +141,7 @@ def extract_file(
         Plot file format.
     baseband : bool
         Also write each channel's baseband as SigMF (``<name>.sigmf-meta``/``-data``).
-    start, duration, allow_nonfinite, force, progress, format, rate, center, strict
+    start, duration, allow_nonfinite, force, progress, format, rate, center, strict, verify
         As for :func:`demod_file`.
     """
     check_plot_format(plot_format)
@@ -149,7 +151,8 @@ def extract_file(
     folder = Path(out_dir)
     if folder.exists() and not folder.is_dir():
         raise ParameterError(f"out_dir {folder}: exists and is not a folder", parameters=("out_dir",))
-    with opened(capture, format=format, rate=rate, center=center, strict=strict) as cap:
+    with opened(capture, format=format, rate=rate, center=center, strict=strict,
+                verify=verify) as cap:
         selection = cap.select(start, duration)
         extractor = Extractor.from_plan(cap, plan_obj, selection=selection, spectra=spectra)
         parent = folder.parent if str(folder.parent) else Path(".")
@@ -161,19 +164,13 @@ def extract_file(
             for rx in extractor.receivers:  # before any work: no plot overwritten without force
                 if (folder / "spectra" / _stem(rx)).is_dir():
                     check_stage_plot_folder(folder / "spectra" / _stem(rx), plot_format, force)
-        created = not folder.exists()
-        folder.mkdir(exist_ok=True)
-        try:
-            protect = (*cap.files, *(() if plan_file is None else (plan_file,)))
-            with OutputSet(force=force, protect=protect) as outputs:
-                return _run(extractor, cap, selection, folder, outputs, started,
-                            plan=str(plan_file) if plan_file is not None else plan_obj.source,
-                            baseband=baseband, spectra=spectra, plot_format=plot_format,
-                            nonfinite=nonfinite_policy(allow_nonfinite), progress=progress)
-        except BaseException:
-            if created and not any(folder.iterdir()):
-                folder.rmdir()
-            raise
+        protect = (*cap.files, *(() if plan_file is None else (plan_file,)))
+        with OutputSet(force=force, protect=protect) as outputs:
+            outputs.make_folder(folder)  # removed again, with spectra/<name>/, unless the job finishes
+            return _run(extractor, cap, selection, folder, outputs, started,
+                        plan=str(plan_file) if plan_file is not None else plan_obj.source,
+                        baseband=baseband, spectra=spectra, plot_format=plot_format,
+                        nonfinite=nonfinite_policy(allow_nonfinite), progress=progress)
 
 
 def _stem(rx: Any) -> str:

@@ -33,6 +33,7 @@ def info_file(
     center: str | float | None = None,
     strict: bool = False,
     progress: Progress | None = None,
+    verify: bool = True,
 ) -> InfoResult:
     """Describe a capture and measure it in one pass (NaN/Inf samples are counted, not refused).
 
@@ -44,8 +45,11 @@ def info_file(
         How to read a capture given by path (see :func:`iqsift.open_capture`).
     progress : callable, optional
         Called after each block with the samples processed and the total.
+    verify : bool
+        Check a SigMF capture's data against its ``core:sha512`` while reading it; a mismatch
+        raises :class:`~iqsift.captures.ChecksumError`.
     """
-    with opened(capture, format=format, rate=rate, center=center, strict=strict) as cap:
+    with opened(capture, format=format, rate=rate, center=center, strict=strict, verify=verify) as cap:
         acc = StatsAccumulator(cap.is_complex, cap.clip_high)
         for block in counted(cap.blocks(nonfinite="keep"), cap.samples, progress):
             acc.update(block)

@@ -64,6 +64,7 @@ def measure_file(
     rate: str | float | None = None,
     center: str | float | None = None,
     strict: bool = False,
+    verify: bool = True,
 ) -> MeasureResult:
     """Measure one channel of a capture; writes nothing.
 
@@ -81,10 +82,11 @@ def measure_file(
         x of the x-dB bandwidth (ITU-R SM.328), dB.
     threshold_db : float
         Activity threshold above the channel's noise floor, dB.
-    start, duration, allow_nonfinite, progress, format, rate, center, strict
+    start, duration, allow_nonfinite, progress, format, rate, center, strict, verify
         As for :func:`demod_file`.
     """
-    with opened(capture, format=format, rate=rate, center=center, strict=strict) as cap:
+    with opened(capture, format=format, rate=rate, center=center, strict=strict,
+                verify=verify) as cap:
         selection = cap.select(start, duration)
         receiver = Receiver.for_capture(cap, channel, selection, agc=False).analyze(
             tone_hz=tone_hz, weighting=weighting, x_db=x_db, activity={"threshold_db": threshold_db},

@@ -69,6 +69,7 @@ def survey_file(
     rate: str | float | None = None,
     center: str | float | None = None,
     strict: bool = False,
+    verify: bool = True,
 ) -> SurveyReport:
     """Survey a capture in one streaming pass.
 
@@ -85,14 +86,15 @@ def survey_file(
         emission is found, nothing is written and :attr:`SurveyReport.plan` is None.
     resolution_hz : float, optional
         Detection bin width (Hz); default about 60 Hz.
-    start, duration, allow_nonfinite, force, progress, format, rate, center, strict
+    start, duration, allow_nonfinite, force, progress, format, rate, center, strict, verify
         As for :func:`demod_file`.
     """
     raster_obj = parse_raster(raster) if isinstance(raster, str) else raster
     protect = input_files(capture) if isinstance(capture, (str, os.PathLike)) else capture.files
     with OutputSet(force=force, protect=protect) as outputs:
         plan_tmp = outputs.reserve(plan_out) if plan_out else None  # checked before any work
-        with opened(capture, format=format, rate=rate, center=center, strict=strict) as cap:
+        with opened(capture, format=format, rate=rate, center=center, strict=strict,
+                    verify=verify) as cap:
             selection = cap.select(start, duration)
             if raster_obj is not None and cap.center_for(selection) is None:
                 raise ParameterError(
