@@ -158,7 +158,10 @@ def test_rates_and_delay_are_read_only():
         ("fm", FS, {}, "mode"),
         ("envelope", 0.0, {}, "rate_hz"),
         ("envelope", float("nan"), {}, "rate_hz"),
-        ("coherent", FS, {"max_offset_hz": 4000.0}, "max_offset_hz"),
+        ("coherent", FS, {"max_offset_hz": 8000.0}, "max_offset_hz"),  # the carrier must lie below rate/2
+        ("dsb", FS, {"max_offset_hz": 4000.0}, "max_offset_hz"),  # twice the offset must lie below rate/2
+        ("coherent", FS, {"track_range_hz": 0.0}, "track_range_hz"),
+        ("coherent", FS, {"reacquire_s": -1.0}, "reacquire_s"),
         ("coherent", FS, {"bogus": 1}, "bogus"),
         ("dsb", FS, {"carrier_stop_hz": -5.0}, "carrier_stop_hz"),
         ("usb", FS, {"low_hz": 3000.0, "high_hz": 300.0}, "low_hz"),

@@ -92,6 +92,17 @@ def dsb_complex(n: int, seed: int = 0) -> np.ndarray:
     return (z + 0.01 * (rng.standard_normal(n) + 1j * rng.standard_normal(n))).astype(np.complex64)
 
 
+def am_hopping_complex(n: int, seed: int = 0) -> np.ndarray:
+    """Two AM transmissions far off 0 Hz (+2300 Hz, then -1700 Hz) with a pause between, plus noise (complex64):
+    the coherent detector acquires, tracks, lets go and acquires again within one stream."""
+    rng = np.random.default_rng(seed)
+    t = np.arange(n) / FS
+    msg = 0.5 * (1 + 0.6 * np.cos(2 * np.pi * 410.0 * t))
+    first, second = t < 0.4 * n / FS, t >= 0.6 * n / FS
+    z = msg * (first * np.exp(2j * np.pi * 2300.0 * t + 0.7j) + second * np.exp(-2j * np.pi * 1700.0 * t))
+    return (z + 0.01 * (rng.standard_normal(n) + 1j * rng.standard_normal(n))).astype(np.complex64)
+
+
 # name -> (factory of a fresh stage, input signal generator)
 STAGES: dict[str, tuple[Callable[[], Stage], Callable[[int, int], np.ndarray]]] = {
     "mixer": (lambda: Mixer(FS, 1234.5), noise_complex),
@@ -107,6 +118,8 @@ STAGES: dict[str, tuple[Callable[[], Stage], Callable[[int, int], np.ndarray]]] 
     "usb": (lambda: SidebandDetector(FS, "usb"), noise_complex),
     "lsb_unfiltered": (lambda: SidebandDetector(FS, "lsb", sideband_filter=False), noise_complex),
     "coherent": (lambda: CoherentDetector(FS, frame_s=0.01, window_s=0.05), am_complex),
+    "coherent_acquiring": (lambda: CoherentDetector(FS, frame_s=0.01, window_s=0.05, reacquire_s=0.05,
+                                                    channel_name="hopping"), am_hopping_complex),
     "dsb": (lambda: DsbDetector(FS, frame_s=0.01, window_s=0.05), dsb_complex),
     "carrier_normaliser": (lambda: CarrierNormaliser(FS, pass_hz=15.0, stop_hz=200.0), am_real),
     "carrier_normaliser_unchecked": (

@@ -14,9 +14,10 @@ Modes (see :func:`make_detector`):
     faded below the sidebands.
 ``coherent``
     Synchronous (coherent) detection of AM with carrier (Haykin, coherent
-    detection): the carrier is recovered from the signal itself and the output
-    is ``Re(z · conj(ĉ) / |ĉ|)``, i.e. the in-phase component ``A(1 + m s(t))``
-    including negative excursions, with the carrier DC kept.
+    detection): the carrier is acquired anywhere in the channel, tracked, and
+    recovered from the signal itself; the output is ``Re(z · conj(ĉ) / |ĉ|)``,
+    i.e. the in-phase component ``A(1 + m s(t))`` including negative
+    excursions, with the carrier DC kept.
 ``usb`` / ``lsb``
     Single sideband, product detection with the carrier at 0 Hz: ``Re(z)``,
     optionally after a one-sided complex band-pass that removes the opposite
@@ -52,6 +53,8 @@ from __future__ import annotations
 
 import inspect
 import math
+import warnings
+from collections import deque
 from collections.abc import Mapping
 from typing import Any
 
@@ -61,7 +64,7 @@ from scipy import fft as sfft
 from scipy import signal
 
 from .. import checks
-from ..errors import ParameterError
+from ..errors import IqsiftWarning, ParameterError
 from ..modes import MODES
 from .filters import carrier_lowpass_taps, sideband_bandpass_taps
 from .stages import Stage
@@ -250,22 +253,27 @@ class SidebandDetector(_Detector):
 
 
 # ----------------------------------------------------------------------------- frame-based carrier recovery
+TRACK_FRAMES_KEPT = 3000
+"""Frames of :attr:`carrier_track` kept (the latest; one minute at the default 20 ms frame): bounded memory."""
+
+
 class _CarrierTracker(_Detector):
     """Frame-wise carrier frequency estimation + phase-continuous NCO + carrier low-pass.
 
     Frame ``k`` covers input samples ``[k·H, (k+1)·H)`` (``H`` = ``frame_s·fs``).
-    Its carrier frequency is estimated from an analysis window of ``W`` samples
-    centred on the frame (zeros before the stream's start and after its end):
-    the spectrum of the *squared* signal ``z²`` (Hann window, zero-padded FFT)
-    is searched for its largest line within ``±2·max_offset_hz``, refined by
-    parabolic interpolation of the log magnitude, and halved.  Squaring makes
-    the estimate robust: for any AM-family signal ``z = p(t)·e^{jθ(t)}`` with a
-    real ``p`` (AM with or without carrier, overmodulated, carrier faded), ``z²
-    = p²·e^{j2θ}`` with ``p² >= 0``, and the spectrum of a non-negative sequence
-    (times a non-negative window) has its largest magnitude at zero frequency,
-    so the peak of ``|FFT(w·z²)|`` sits at ``2Δf`` even when message tones are
-    stronger than the carrier (common practice for DSB-SC carrier recovery; the
-    peak property is the triangle inequality).  The previous frequency is
+    Its carrier frequency is estimated (the subclass's ``_estimate``) from an
+    analysis window of ``W`` samples centred on the frame (zeros before the
+    stream's start and after its end).  The common estimate is the *squared
+    line*: the spectrum of ``z²`` (Hann window, zero-padded FFT) is searched
+    for its largest line, refined by parabolic interpolation of the log
+    magnitude, and halved.  Squaring makes the estimate robust: for any
+    AM-family signal ``z = p(t)·e^{jθ(t)}`` with a real ``p`` (AM with or
+    without carrier, overmodulated, carrier faded), ``z² = p²·e^{j2θ}`` with
+    ``p² >= 0``, and the spectrum of a non-negative sequence (times a
+    non-negative window) has its largest magnitude at zero frequency, so the
+    peak of ``|FFT(w·z²)|`` sits at ``2Δf`` even when message tones are
+    stronger than the carrier (common practice for DSB-SC carrier recovery;
+    the peak property is the triangle inequality).  The previous frequency is
     held when the frame's line is not clear: its peak is less than
     ``min_peak_db`` above the median of the search range (no signal), or more
     than ``accept_drop_db`` below the recent best line-to-median ratio (a
@@ -280,27 +288,19 @@ class _CarrierTracker(_Detector):
     :func:`carrier_lowpass_taps` to obtain the carrier phasor.
     """
 
-    def __init__(
-        self,
-        rate_hz: float,
-        *,
-        max_offset_hz: float = 600.0,
-        frame_s: float = 0.02,
-        window_s: float = 0.2,
-        carrier_stop_hz: float = 120.0,
-        carrier_atten_db: float = 70.0,
-        min_peak_db: float = 15.0,
-        accept_drop_db: float = 6.0,
-        release_db_per_s: float = 5.0,
-        initial_offset_hz: float = 0.0,
-    ) -> None:
+    _offset_limit = 0.25  # max_offset_hz must stay below this fraction of the rate ...
+    _offset_reason = "the squared signal's line at twice the offset must stay below rate/2"  # ... because
+
+    def __init__(self, rate_hz: float, *, max_offset_hz: float, frame_s: float, window_s: float,
+                 carrier_stop_hz: float, carrier_atten_db: float, min_peak_db: float, accept_drop_db: float,
+                 release_db_per_s: float, initial_offset_hz: float) -> None:
         super().__init__(rate_hz)
         fs = self._rate
         self.max_offset_hz = checks.positive("max_offset_hz", max_offset_hz)
-        if self.max_offset_hz >= fs / 4.0:
+        if self.max_offset_hz >= fs * self._offset_limit:
             raise ParameterError(
-                f"max_offset_hz: got {max_offset_hz!r} Hz; it must be below rate/4 = {fs / 4.0:g} Hz "
-                "(the squared signal's line at twice the offset must stay below rate/2)"
+                f"max_offset_hz: got {max_offset_hz!r} Hz; it must be below {self._offset_limit:g}·rate = "
+                f"{fs * self._offset_limit:g} Hz ({self._offset_reason})"
             )
         self.frame_s = checks.positive("frame_s", frame_s)
         self.window_s = checks.positive("window_s", window_s)
@@ -321,9 +321,8 @@ class _CarrierTracker(_Detector):
             raise ParameterError(f"window_s: got {window_s!r} s, only {self._win_len} samples; need >= 16 samples")
         self._nfft = 1 << int(math.ceil(math.log2(2 * self._win_len)))
         self._window = signal.windows.hann(self._win_len, sym=True)
-        k_max = int(math.floor(2.0 * self.max_offset_hz / fs * self._nfft))
-        self._search_k = np.arange(-k_max, k_max + 1)
-        self._search_idx = self._search_k % self._nfft
+        k_max = int(math.floor(self.max_offset_hz / fs * self._nfft))
+        self._search_k = np.arange(-k_max, k_max + 1)  # bins of the signal's spectrum within ±max_offset_hz
         self._taps = carrier_lowpass_taps(fs, carrier_stop_hz, carrier_atten_db)
         self._delay = (len(self._taps) - 1) // 2
         self._reset_state()
@@ -351,9 +350,10 @@ class _CarrierTracker(_Detector):
 
     @property
     def carrier_track(self) -> list[tuple[float, float]]:
-        """``[(time_s, offset_hz), ...]``: per frame, the frame centre (s from stream start) and carrier offset (Hz).
+        """``[(time_s, offset_hz), ...]``: per frame, the frame centre (s from stream start) and the NCO frequency (Hz).
 
-        Kept after :meth:`flush` until the next stream starts (``reset()`` or ``process()`` after flush).
+        The latest :data:`TRACK_FRAMES_KEPT` frames; kept after :meth:`flush` until the next stream starts
+        (``reset()`` or ``process()`` after flush).
         """
         return list(self._track)
 
@@ -368,7 +368,7 @@ class _CarrierTracker(_Detector):
         self._best_db = -math.inf  # peak-hold of the line-to-median ratio (dB)
         self._fir_hist = np.zeros(len(self._taps) - 1, np.complex128)
         self._delay_hist = np.zeros(self._delay, np.complex128)
-        self._track: list[tuple[float, float]] = []
+        self._track: deque[tuple[float, float]] = deque(maxlen=TRACK_FRAMES_KEPT)
         self._reset_extra()
 
     def _reset_extra(self) -> None:
@@ -383,27 +383,32 @@ class _CarrierTracker(_Detector):
             out[a - start : b - start] = self._buf[a - self._buf_start : b - self._buf_start]
         return out
 
-    def _estimate(self, win: np.ndarray) -> float:
-        spec = sfft.fft(win * win * self._window, self._nfft)
-        mag = np.abs(spec[self._search_idx])
-        i = int(np.argmax(mag))
-        peak = float(mag[i])
-        med = float(np.median(mag))
+    def _squared_spectrum(self, win: np.ndarray) -> np.ndarray:
+        """``|FFT(w·z²)|`` of an analysis window (all ``nfft`` bins)."""
+        return np.abs(sfft.fft(win * win * self._window, self._nfft))
+
+    def _squared_line(self, mag: np.ndarray, ks: np.ndarray) -> bool:
+        """Take the largest line of ``mag`` among bins ``ks`` (signed, unwrapped) as ``2·freq``, if it is clear.
+
+        Returns True when accepted (``_freq`` updated, clipped to ±max_offset_hz); False when held (no
+        clear line, or much less clear than recently, or digital silence).
+        """
+        m = mag[ks % self._nfft]
+        i = int(np.argmax(m))
+        peak = float(m[i])
+        med = float(np.median(m))
         if not peak > 0.0:
-            return self._freq  # digital silence: hold
+            return False  # digital silence: hold
         ratio_db = 20.0 * math.log10(peak / med) if med > 0.0 else 300.0
         self._best_db = max(self._best_db - self.release_db_per_s * self._hop / self._rate, ratio_db)
         if ratio_db < self.min_peak_db or ratio_db < self._best_db - self.accept_drop_db:
-            return self._freq  # no clear line, or much less clear than recently (edge of a pause): hold
-        delta = 0.0
-        if 0 < i < len(mag) - 1:
-            a, b, c = np.log(mag[i - 1 : i + 2] + peak * 1e-12)
-            den = a - 2.0 * b + c
-            if den < 0.0:
-                delta = float(np.clip(0.5 * (a - c) / den, -0.5, 0.5))
-        f = (self._search_k[i] + delta) * self._rate / self._nfft / 2.0
+            return False  # no clear line, or much less clear than recently (edge of a pause): hold
+        f = (ks[i] + _parabolic_offset(m, i)) * self._rate / self._nfft / 2.0
         self._freq = float(np.clip(f, -self.max_offset_hz, self.max_offset_hz))
-        return self._freq
+        return True
+
+    def _estimate(self, win: np.ndarray) -> float:  # pragma: no cover - overridden
+        raise NotImplementedError
 
     def _lowpass(self, x: np.ndarray) -> np.ndarray:
         """Causal FIR with the carrier taps; state carried in ``_fir_hist``."""
@@ -460,11 +465,29 @@ class _CarrierTracker(_Detector):
         The carrier track stays readable until the next ``process()`` or ``reset()``.
         """
         outs = self._run_frames(final=True) if self._n_in else []
+        if self._n_in:
+            self._stream_ended()
         self._finished = True
         return np.concatenate(outs).astype(np.float32) if outs else np.zeros(0, np.float32)
 
+    def _stream_ended(self) -> None:
+        pass
+
     def _detect(self, zm: np.ndarray) -> np.ndarray:  # pragma: no cover - overridden
         raise NotImplementedError
+
+
+def _parabolic_offset(m: np.ndarray, i: int) -> float:
+    """Fractional-bin offset of the peak ``m[i]`` by a parabola through the log magnitudes of ``m[i-1..i+1]``.
+
+    For a Hann main lobe sampled at two or more bins per lobe width this is within a few hundredths of
+    a bin of the true position (Gaussian interpolation, common practice); 0 at the ends of ``m``.
+    """
+    if not 0 < i < len(m) - 1:
+        return 0.0
+    a, b, c = np.log(m[i - 1 : i + 2] + m[i] * 1e-12)
+    den = a - 2.0 * b + c
+    return float(np.clip(0.5 * (a - c) / den, -0.5, 0.5)) if den < 0.0 else 0.0
 
 
 class CoherentDetector(_CarrierTracker):
@@ -476,22 +499,37 @@ class CoherentDetector(_CarrierTracker):
     ``1 + m s(t)`` goes negative (overmodulation) or when selective fading
     weakens the carrier relative to the sidebands.
 
-    Carrier recovery (see :class:`_CarrierTracker` for the frame-wise frequency
-    estimate and the NCO): with ``zm = z·e^{-jφ_nco}``, the carrier phasor is
-    ``ĉ = h * zm`` with ``h`` the narrow non-negative low-pass of
-    :func:`carrier_lowpass_taps` (first null at ``carrier_stop_hz``).  The
-    output is ``y[n] = Re(zm[n - D]·conj(ĉ[n])) / |ĉ[n]|`` with ``D`` = ``delay`` =
-    the low-pass's group delay, i.e. the in-phase component relative to the
-    recovered carrier; the carrier DC stays in the output.  With the carrier
-    present there is no 180° ambiguity: ``ĉ`` is the carrier itself.  Output is
-    zero where ``ĉ`` is exactly zero (digital silence).
+    Carrier acquisition, anywhere within ±``max_offset_hz`` (by default 0.4 × the rate, which covers the
+    channel passband of either front end: the FFT engine's channel rate is at least 2.5 × the passband
+    edge, the polyphase engine's 3 ×).  While no carrier is locked, each frame's analysis window is
+    searched twice: the largest line of the squared spectrum ``|FFT(w·z²)|`` over the whole circle gives
+    ``2Δf`` modulo the rate, robustly (see :class:`_CarrierTracker`), so the carrier is at ``f₁`` or
+    ``f₁ ± rate/2``; of these candidates within range, the one with the larger line in the spectrum of
+    ``z`` itself is taken, and it is a carrier only if that line (the largest bin within ±2 bins of the
+    candidate) stands at least ``min_peak_db`` above the median of ``|FFT(w·z)|`` over ±``max_offset_hz``.
+    A suppressed carrier (DSB-SC, SSB) or noise has no such line, so nothing is locked; a stream of at
+    least half an analysis window that ends without a lock gets an ``IqsiftWarning`` naming ``channel_name``.
+
+    Tracking, once locked: the squared spectrum is searched only within ±``track_range_hz`` of the locked
+    frequency (so a strong sideband can never capture the tracker; a drift of tens of Hz/s moves the
+    carrier a fraction of a hertz per frame), with the hold rules of :class:`_CarrierTracker`.  After
+    ``reacquire_s`` of held frames (the carrier gone, e.g. between push-to-talk transmissions) the whole
+    range is searched again, so the next transmission is found wherever it is; meanwhile the NCO holds
+    the last frequency.
+
+    Detection: with ``zm = z·e^{-jφ_nco}``, the carrier phasor is ``ĉ = h * zm`` with ``h`` the narrow
+    non-negative low-pass of :func:`carrier_lowpass_taps` (first null at ``carrier_stop_hz``).  The output
+    is ``y[n] = Re(zm[n - D]·conj(ĉ[n])) / |ĉ[n]|`` with ``D`` = ``delay`` = the low-pass's group delay,
+    i.e. the in-phase component relative to the recovered carrier; the carrier DC stays in the output.
+    With the carrier present there is no 180° ambiguity: ``ĉ`` is the carrier itself.  Output is zero
+    where ``ĉ`` is exactly zero (digital silence).
 
     Parameters
     ----------
     rate_hz : float
-        Channel sample rate in Hz (``max_offset_hz < rate_hz/4``).
-    max_offset_hz : float
-        Carrier search range ±Hz around 0 Hz (default 600 Hz).
+        Channel sample rate in Hz.
+    max_offset_hz : float, optional
+        Carrier search range ±Hz around 0 Hz (default 0.4 × ``rate_hz``; below ``rate_hz``/2).
     frame_s : float
         Frame (hop) length in s for the frequency estimate (default 0.02 s).
     window_s : float
@@ -503,17 +541,111 @@ class CoherentDetector(_CarrierTracker):
         Message content below ``carrier_stop_hz`` leaks into the carrier
         reference; voice (>= 300 Hz) is well clear.
     min_peak_db : float
-        Hold the frequency when the squared spectrum's peak is less than this
-        many dB above its median in the search range (default 15 dB).
+        A carrier is acquired when its line is this many dB above the median of the spectrum; a locked
+        frequency is held when the squared spectrum's peak is less than this many dB above its median in
+        the tracking range (default 15 dB).
     accept_drop_db, release_db_per_s : float
         Hold the frequency when the line-to-median ratio is more than
         ``accept_drop_db`` (default 6 dB) below its recent peak, which decays
         by ``release_db_per_s`` (default 5 dB/s).
     initial_offset_hz : float
-        Frequency assumed until the first clear estimate (default 0 Hz).
+        NCO frequency until a carrier is acquired (default 0 Hz).
+    track_range_hz : float
+        Tracking search range ±Hz around the locked frequency (default 100 Hz).
+    reacquire_s : float
+        Held time after which the whole range is searched again (default 1 s).
+    channel_name : str, optional
+        Names the channel in the no-carrier warning.
     """
 
     mode = "coherent"
+    _offset_limit = 0.5
+    _offset_reason = "the carrier must lie within the channel's spectrum"
+
+    def __init__(self, rate_hz: float, *, max_offset_hz: float | None = None, frame_s: float = 0.02,
+                 window_s: float = 0.2, carrier_stop_hz: float = 120.0, carrier_atten_db: float = 70.0,
+                 min_peak_db: float = 15.0, accept_drop_db: float = 6.0, release_db_per_s: float = 5.0,
+                 initial_offset_hz: float = 0.0, track_range_hz: float = 100.0, reacquire_s: float = 1.0,
+                 channel_name: str | None = None) -> None:
+        self.track_range_hz = checks.positive("track_range_hz", track_range_hz)
+        self.reacquire_s = checks.positive("reacquire_s", reacquire_s)
+        self.channel_name = None if channel_name is None else str(channel_name)
+        rate = checks.positive("rate_hz", rate_hz)
+        super().__init__(rate, max_offset_hz=0.4 * rate if max_offset_hz is None else max_offset_hz,
+                         frame_s=frame_s, window_s=window_s, carrier_stop_hz=carrier_stop_hz,
+                         carrier_atten_db=carrier_atten_db, min_peak_db=min_peak_db, accept_drop_db=accept_drop_db,
+                         release_db_per_s=release_db_per_s, initial_offset_hz=initial_offset_hz)
+        half = self._nfft // 2
+        self._circle_k = np.arange(-half, half)  # every bin of the squared spectrum, signed
+        k_track = max(2, int(math.ceil(2.0 * self.track_range_hz / self._rate * self._nfft)))
+        self._track_k = np.arange(-k_track, k_track + 1)
+
+    @property
+    def carrier_offset_hz(self) -> float:
+        """The tracked carrier offset from 0 Hz in Hz at the latest frame; NaN while no carrier was ever acquired
+        in this stream (the last tracked frequency is held when the carrier goes)."""
+        return self._track[-1][1] if self._acquired and self._track else float("nan")
+
+    @property
+    def locked(self) -> bool:
+        """Whether a carrier is being tracked now (False while searching)."""
+        return self._locked
+
+    def _reset_extra(self) -> None:
+        self._locked = False
+        self._acquired = False  # a carrier was locked at some time in this stream
+        self._held_s = 0.0  # time the locked frequency has been held
+        self._best_acquire_db = -math.inf  # the clearest candidate line seen while searching (dB over the median)
+
+    def _estimate(self, win: np.ndarray) -> float:
+        sq = self._squared_spectrum(win)
+        if self._locked:
+            centre = int(round(2.0 * self._freq / self._rate * self._nfft))
+            if self._squared_line(sq, centre + self._track_k):
+                self._held_s = 0.0
+            else:
+                self._held_s += self._hop / self._rate
+                self._locked = self._held_s < self.reacquire_s
+            return self._freq
+        found = self._acquire(win, sq)
+        if found is not None:
+            self._freq = found
+            self._locked = self._acquired = True
+            self._held_s = 0.0
+            self._best_db = -math.inf  # a new carrier: forget the previous one's line clarity
+        return self._freq
+
+    def _acquire(self, win: np.ndarray, sq: np.ndarray) -> float | None:
+        """The carrier frequency in this window (Hz), or None when there is no carrier line."""
+        m = sq[self._circle_k % self._nfft]
+        i = int(np.argmax(m))
+        if not m[i] > 0.0:
+            return None  # digital silence
+        f1 = float(self._circle_k[i] + _parabolic_offset(m, i)) * self._rate / self._nfft / 2.0  # in [-rate/4, rate/4)
+        mag = np.abs(sfft.fft(win * self._window, self._nfft))
+        floor = float(np.median(mag[self._search_k % self._nfft]))
+        best_db, best_f = -math.inf, 0.0
+        for f in (f1, f1 - math.copysign(0.5 * self._rate, f1)):
+            if abs(f) > self.max_offset_hz:
+                continue
+            b = int(round(f / self._rate * self._nfft))
+            peak = float(np.max(mag[np.arange(b - 2, b + 3) % self._nfft]))
+            line_db = 20.0 * math.log10(peak / floor) if floor > 0.0 else (300.0 if peak > 0.0 else -math.inf)
+            if line_db > best_db:
+                best_db, best_f = line_db, f
+        self._best_acquire_db = max(self._best_acquire_db, best_db)
+        return best_f if best_db >= self.min_peak_db else None
+
+    def _stream_ended(self) -> None:
+        if self._acquired or self._n_in < self._win_len // 2:
+            return  # locked, or too short to tell (less than the look-ahead of one frame)
+        where = f"channel {self.channel_name!r}" if self.channel_name is not None else "coherent detector"
+        seen = (f"the clearest candidate line was {self._best_acquire_db:.1f} dB above the spectrum's median"
+                if math.isfinite(self._best_acquire_db) else "the signal was digital silence")
+        warnings.warn(
+            f"{where}: no carrier to lock to within ±{self.max_offset_hz:g} Hz ({seen}; a carrier needs "
+            f"{self.min_peak_db:g} dB), so the coherent audio is not the message; a suppressed-carrier signal "
+            "needs mode dsb, usb or lsb", IqsiftWarning, stacklevel=3)
 
     def _detect(self, zm: np.ndarray) -> np.ndarray:
         c = self._lowpass(zm)
@@ -548,41 +680,30 @@ class DsbDetector(_CarrierTracker):
     frequency is within about ``1/(4·pause)`` Hz of the true offset (a
     quarter turn of the carrier over the pause).
 
-    Parameters are those of :class:`CoherentDetector`, plus ``phase_hold_db``
+    Parameters are those of :class:`CoherentDetector` up to ``initial_offset_hz``, except that every
+    frame's frequency is the squared line within ±``max_offset_hz`` (default 600 Hz, below rate/4: twice
+    the offset must stay below rate/2, and no carrier line resolves the alias), plus ``phase_hold_db``
     (default 15 dB, power ratio); ``carrier_stop_hz`` also bounds the
     squared message's content that reaches the phase estimate.
     """
 
     mode = "dsb"
 
-    def __init__(
-        self,
-        rate_hz: float,
-        *,
-        max_offset_hz: float = 600.0,
-        frame_s: float = 0.02,
-        window_s: float = 0.2,
-        carrier_stop_hz: float = 120.0,
-        carrier_atten_db: float = 70.0,
-        min_peak_db: float = 15.0,
-        initial_offset_hz: float = 0.0,
-        accept_drop_db: float = 6.0,
-        release_db_per_s: float = 5.0,
-        phase_hold_db: float = 15.0,
-    ) -> None:
+    def __init__(self, rate_hz: float, *, max_offset_hz: float = 600.0, frame_s: float = 0.02, window_s: float = 0.2,
+                 carrier_stop_hz: float = 120.0, carrier_atten_db: float = 70.0, min_peak_db: float = 15.0,
+                 initial_offset_hz: float = 0.0, accept_drop_db: float = 6.0, release_db_per_s: float = 5.0,
+                 phase_hold_db: float = 15.0) -> None:
         self.phase_hold_db = checks.positive("phase_hold_db", phase_hold_db)
-        super().__init__(
-            rate_hz,
-            max_offset_hz=max_offset_hz,
-            frame_s=frame_s,
-            window_s=window_s,
-            carrier_stop_hz=carrier_stop_hz,
-            carrier_atten_db=carrier_atten_db,
-            min_peak_db=min_peak_db,
-            accept_drop_db=accept_drop_db,
-            release_db_per_s=release_db_per_s,
-            initial_offset_hz=initial_offset_hz,
-        )
+        super().__init__(rate_hz, max_offset_hz=max_offset_hz, frame_s=frame_s, window_s=window_s,
+                         carrier_stop_hz=carrier_stop_hz, carrier_atten_db=carrier_atten_db, min_peak_db=min_peak_db,
+                         accept_drop_db=accept_drop_db, release_db_per_s=release_db_per_s,
+                         initial_offset_hz=initial_offset_hz)
+        k_max = int(math.floor(2.0 * self.max_offset_hz / self._rate * self._nfft))
+        self._squared_k = np.arange(-k_max, k_max + 1)  # the squared line within ±2·max_offset_hz
+
+    def _estimate(self, win: np.ndarray) -> float:
+        self._squared_line(self._squared_spectrum(win), self._squared_k)
+        return self._freq
 
     def _reset_extra(self) -> None:
         self._w_last = 0.0  # wrapped phase of q at the last sample

@@ -80,6 +80,8 @@ class ChannelBackEnd:
         if ch.mode in ("usb", "lsb"):
             # the front end's one-sided channel filter already rejects the opposite sideband (>= atten_db)
             options.setdefault("sideband_filter", False)
+        if ch.mode == "coherent":
+            options.setdefault("channel_name", ch.name)  # its lock warning names the channel
         self.detector = make_detector(ch.mode, rate, **options)
         settle = int(round(self.detector.delay))  # the detector's start-up is not signal
         post: list[Stage] = []
