@@ -204,3 +204,35 @@ def test_raster_frequencies_edges_and_errors() -> None:
         raster_frequencies("9k", 0, 1e12)
     with pytest.raises(ParameterError):
         raster_frequencies("25k", "abc", 1e6)
+
+
+def test_snap_tolerance_and_classes() -> None:
+    # Snapping rule (module notes of iqsift.rasters): A3E carriers only, within 1 kHz of a grid point.
+    assert all(r.snap_tolerance_hz == 1000.0 and r.classes == ("A3E",) for r in RASTERS.values())
+    r25 = RASTERS["25k"]
+    assert r25.snap_error(124.025037e6, "A3E") is None
+    assert r25.snap_error(124.1747e6, "A3E") is None  # 300 Hz off tune
+    assert "tolerance" in (r25.snap_error(124.0918e6, "A3E") or "")  # an 8.33 kHz channel, 8.2 kHz away
+    assert "not J3E" in (RASTERS["9k"].snap_error(999e3, "J3E") or "")  # SSB never on an AM raster
+    assert "tolerance" in (RASTERS["9k"].snap_error(7.185e6, "A3E") or "")  # 3 kHz off the 9 kHz grid
+    assert RASTERS["8.33k"].snap_error(118.0083e6, "A3E") is None
+
+
+def test_two_carriers_never_share_a_grid_point() -> None:
+    import warnings
+
+    from iqsift.errors import IqsiftWarning
+    from iqsift.survey.results import DetectedEmission
+    from iqsift.survey.snapping import snap_emissions
+
+    def emission(index: int, freq_hz: float) -> DetectedEmission:
+        return DetectedEmission(index, freq_hz, 0.0, "grandke-fine", "A3E", None, "envelope", "high", "", -40.0,
+                                -40.0, 40.0, -40.0, freq_hz - 3e3, freq_hz + 3e3, 5e3, freq_hz - 2.5e3,
+                                freq_hz + 2.5e3, 5e3, 6e3, "6K00A3E")
+
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        a, b = snap_emissions([emission(1, 127.3496e6), emission(2, 127.3502e6)], RASTERS["25k"])
+    assert a.raster_frequency_hz is None and "taken by the nearer emission 2" in (a.raster_reason or "")
+    assert b.raster_frequency_hz == 127.35e6 and b.channel_name == "127.350"
+    assert [w.category for w in caught] == [IqsiftWarning]

@@ -26,6 +26,27 @@ AM broadcast (ITU Geneva 1975 plan for Regions 1 and 3; Region 2 practice)
 Rasters known here, by name (:func:`parse_raster`): ``"25k"`` (multiples of
 25 kHz), ``"8.33k"`` (25/3 kHz steps anchored on 118.000 MHz, so that every
 25 kHz channel of the aeronautical band is also on it), ``"9k"`` and ``"10k"``.
+
+Snapping a measured carrier to a raster (:meth:`Raster.snap_error`)
+    A raster says where *assigned* carriers are; it does not move a carrier that
+    is somewhere else. A measured carrier is put on a grid point only when
+
+    - its emission class is one the raster is for (``Raster.classes``): the
+      aeronautical 25 and 8.33 kHz rasters carry air-ground voice, A3E (ICAO
+      Annex 10 Volume V); the 9 and 10 kHz rasters carry A3E sound broadcasting
+      (ITU Geneva 1975 plan). A single-sideband or suppressed-carrier emission is
+      never put on an AM raster: its frequency is not a carrier on that grid;
+    - and it lies within ``Raster.snap_tolerance_hz`` of the grid point: 1 kHz
+      for every raster here. That is wider than the frequency tolerances of the
+      transmitters (aircraft 8.33 kHz equipment 5 ppm, 0.62 kHz at 124 MHz;
+      MF broadcasting 10 Hz, RR Appendix 2; both memory) with room for a
+      receiver's own calibration error, and narrow enough that a snap can never
+      reach the neighbouring channel of the finest raster (half of 8.33 kHz is
+      4.17 kHz) and keeps the carrier and at least 2 kHz of each sideband of a
+      6 kHz A3E channel inside the channel tuned to the grid point.
+
+    Anything else keeps its measured frequency (the survey warns, naming the
+    emission and the reason).
 """
 
 from __future__ import annotations
@@ -258,12 +279,20 @@ class Raster:
         A frequency on the grid, Hz (118.000 MHz for ``"8.33k"``, else 0).
     description : str
         Where the raster is used.
+    snap_tolerance_hz : float
+        Farthest a measured carrier may lie from a grid point to be put on it, Hz
+        (see the module notes).
+    classes : tuple of str
+        Emission classes (ITU designator symbols, e.g. ``"A3E"``) whose carriers the
+        raster is for; others are never snapped to it.
     """
 
     name: str
     step_hz: float
     anchor_hz: float
     description: str
+    snap_tolerance_hz: float = 1000.0
+    classes: tuple[str, ...] = ("A3E",)
 
     def index(self, freq_hz: float) -> int:
         """Whole k of the grid point nearest to ``freq_hz`` (ties go up)."""
@@ -275,6 +304,31 @@ class Raster:
             # (k * 25000) / 3 keeps whole multiples of 25 kHz exact.
             return self.anchor_hz + (index * 25_000.0) / 3.0
         return self.anchor_hz + index * self.step_hz
+
+    def snap_error(self, freq_hz: float, emission_class: str) -> str | None:
+        """Why a carrier may not be put on this raster, or None when it may.
+
+        Parameters
+        ----------
+        freq_hz : float
+            Measured carrier frequency, Hz (absolute).
+        emission_class : str
+            Its class, e.g. ``"A3E"`` or ``"J3E"``.
+
+        Returns
+        -------
+        str or None
+            None when the class is one of :attr:`classes` and the nearest grid point is
+            within :attr:`snap_tolerance_hz`; otherwise the reason, as a phrase.
+        """
+        if emission_class not in self.classes:
+            return f"the {self.name} raster is for {'/'.join(self.classes)} carriers, not {emission_class}"
+        nearest = self.frequency(self.index(freq_hz))
+        off_hz = freq_hz - nearest
+        if abs(off_hz) > self.snap_tolerance_hz:
+            return (f"{off_hz:+.1f} Hz from the nearest {self.name} point {nearest / 1e6:.6f} MHz, "
+                    f"more than the {self.snap_tolerance_hz:g} Hz snap tolerance")
+        return None
 
 
 #: The rasters iqsift knows, by name.

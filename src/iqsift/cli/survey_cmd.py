@@ -131,7 +131,10 @@ def format_survey(report: dict[str, Any]) -> str:
     )
     dc = report.get("dc_offset")
     if dc is not None:
-        state = "visible, not an emission" if dc["visible"] else "below the threshold"
+        if dc.get("carrier_emission") is not None:
+            state = f"a carrier sits there: emission {dc['carrier_emission']}"
+        else:
+            state = "visible, not an emission" if dc["visible"] else "below the threshold"
         lines.append(
             f"DC offset  {dc['level_dbfs']:.1f} dBFS (I {dc['i']:+.5f}, Q {dc['q']:+.5f}); "
             f"0 Hz bin {dc['spike_above_floor_db']:.1f} dB above the floor ({state})"

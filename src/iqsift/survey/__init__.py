@@ -74,6 +74,28 @@ Grouping
     between their carriers as above, so sideband patches go with the carrier
     on their side.
 
+    Sidebands apart from their carrier (a tone of 1.5 kHz or more leaves only
+    noise between the carrier and its lines, more than ``merge_gap_hz``) are
+    joined back to it: starting from the strongest carrier line, the nearest
+    separate emission on either side, out to 5 kHz (the highest modulating
+    frequency of A3E sound broadcasting in ITU-R SM.1138's examples), is taken
+    for a sideband when the spectrum mirrored about the carrier holds the same
+    power within 3 dB (AM by a real message has a spectrum mirrored about its
+    carrier) and each side is at least 2.5 dB below the carrier line (with at
+    most 100 % modulation a sideband holds at most half the carrier power,
+    −3.01 dB; Haykin). Emissions in the mirrored span go with it; a one-sided
+    neighbour (SSB) or a DSB-SC signal centred elsewhere has no mirror image
+    and stays its own emission.
+
+    Carrier at 0 Hz: a baseband centred on its AM channel (as ``iqsift demod
+    --baseband`` writes one) has its carrier in the bins left to the DC offset.
+    A line there shaped like a Hann main lobe and above the threshold is taken
+    for the carrier of the emission around it when sideband power is found on
+    both sides within ±6 dB of each other and each side is at least 2.5 dB
+    below the line (the A3E rule below); the DC guard is then lifted for that
+    emission and ``dc_offset.carrier_emission`` names it. Otherwise (a DC
+    offset amid an SSB or DSB-SC signal) the line stays the DC offset's.
+
 Per emission
     ``level_dbfs``: total power, the noise-subtracted density summed over the
     widened band and, for an emission with a carrier line, 3 kHz each side of
@@ -138,19 +160,30 @@ Channel bandwidth (``bandwidth_hz``, used in the designator and the plan)
 
 Rasters (``raster``)
     ``25k``, ``8.33k``, ``9k``, ``10k`` (:func:`iqsift.rasters.parse_raster`):
-    each carrier is snapped to the nearest grid point (``raster.frequency_hz``,
-    ``raster.error_hz`` = measured − grid) and, for the aeronautical rasters,
-    named by ICAO Annex 10 (:func:`iqsift.rasters.aero_channel_name`, e.g.
-    ``"127.355"``). A raster needs absolute frequencies, so the capture's
-    centre must be known.
+    a carrier is snapped to the nearest grid point (``raster.frequency_hz``,
+    ``raster.error_hz`` = measured − grid, ``raster.tolerance_hz``) only when
+    the raster is for its class and the point is within the raster's tolerance
+    (:meth:`iqsift.rasters.Raster.snap_error`: A3E only, 1 kHz; ICAO Annex 10
+    Volume V for the aeronautical rasters, the ITU Geneva 1975 plan for the
+    broadcast ones), and only one carrier per grid point (the nearer). For the
+    aeronautical rasters it is then named by ICAO Annex 10
+    (:func:`iqsift.rasters.aero_channel_name`, e.g. ``"127.355"``). Every
+    other emission keeps its measured frequency, with ``raster: null``, a
+    ``raster_reason`` and a one-line warning, so no two emissions share a plan
+    channel and none is tuned away from its carrier; the rule is reported as
+    ``raster_rule``. A raster needs absolute frequencies, so the capture's
+    centre must be known (:mod:`~iqsift.survey.snapping`).
 
 Known limits
     Emissions whose spectra touch without a carrier line in both (two adjacent
     SSB signals, or an SSB signal next to an AM one) are reported as one. A
-    carrier within ±2 bins of the centre
-    of an IQ capture is taken for the DC offset, and a DC offset that drifts
+    carrier within ±2 bins of the centre of an IQ capture without sidebands
+    mirrored about it is taken for the DC offset, and a DC offset that drifts
     during the capture spreads beyond ±2 bins and may show as a narrow emission
-    beside 0 Hz. Frequencies of suppressed
+    beside 0 Hz. An LSB and a USB signal of equal power placed mirror-wise
+    within 5 kHz of an AM carrier are taken for its sidebands. The channel
+    width of a strong AM signal whose sidebands reach 3 kHz may come out as
+    8 kHz: the window's spread widens the measured band. Frequencies of suppressed
     carriers are conventions (see above). Bursty emissions are averaged over
     the whole capture, so a short burst reads lower than while it was on.
 
@@ -159,8 +192,8 @@ Modules
     response, Grandke), :mod:`~iqsift.survey.surveyor` (:class:`Surveyor`, the
     resolution rule, :func:`survey_capture`), :mod:`~iqsift.survey.analysis` (floor,
     detection, grouping, measurement), :mod:`~iqsift.survey.results`
-    (:class:`DetectedEmission`, :class:`SurveyResult`), :mod:`~iqsift.survey.proposal`
-    (the proposed channel plan).
+    (:class:`DetectedEmission`, :class:`SurveyResult`), :mod:`~iqsift.survey.snapping`
+    (carriers on a raster), :mod:`~iqsift.survey.proposal` (the proposed channel plan).
 """
 
 from __future__ import annotations

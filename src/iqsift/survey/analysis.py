@@ -19,10 +19,10 @@ import scipy.stats
 from ..emission import designator
 from ..errors import IqsiftWarning, ParameterError
 from ..measure import occupied_bandwidth, x_db_bandwidth
-from ..rasters import aero_channel_name
 from ..spectra import Spectrum
 from .formulas import floor_median_bias, grandke_offset, hann_response
 from .results import DetectedEmission, SurveyResult
+from .snapping import raster_rule, snap_emissions
 
 if TYPE_CHECKING:
     from .surveyor import Surveyor
@@ -44,6 +44,17 @@ _SYMMETRIC_DB = 6.0
 _ONE_SIDED_DB = 10.0
 _MAX_SCALLOP = 0.848826363156775  # |W(0.5)/W(0)| of the Hann window = sinc(0.5)/0.75
 _TINY = 1e-300
+# Sidebands kept apart from their carrier by a gap (a tone of 1.5 kHz or more) are joined back to it
+# out to this distance (Hz): the highest modulating frequency of A3E sound broadcasting, M = 5 kHz
+# (ITU-R SM.1138 examples, 10K0A3E).
+_SIDEBAND_REACH_HZ = 5000.0
+# ... when each side is at least this far below the carrier line (dB): with at most 100 % modulation,
+# A(1 + m s(t)) with |m s| <= 1 puts m^2 <s^2> / 2 <= 1/2 of the carrier power in each sideband
+# (-3.01 dB; Haykin, Communication Systems, ch. 3), less a 0.5 dB allowance for the estimates ...
+_SIDEBAND_BELOW_DB = 2.5
+# ... and when the two sides match within this (dB): the spectrum of AM by a real message is mirrored
+# about the carrier.
+_MIRROR_DB = 3.0
 # Channel-width floors per class (ITU-R SM.1138 telephony examples), Hz.
 _MIN_CHANNEL_HZ = {"A3E": 6000.0, "H3E": 3000.0, "R3E": 3000.0, "J3E": 2700.0}
 
@@ -128,6 +139,7 @@ class _Ctx:
     spec: Spectrum
     fine: Any
     owner: np.ndarray  # index of the group whose widened band holds each bin, -1 for none
+    dc_carrier: bool = False  # a carrier line at 0 Hz is measured (the DC guard is lifted)
 
 
 @dataclass
@@ -221,7 +233,23 @@ def analyse_spectra(
             last.hi, last.ext_hi = max(last.hi, g.hi), max(last.ext_hi, g.ext_hi)
         else:
             widened.append(g)
-    groups = [part for g in widened for part in _split_carriers(g, excess, ratio, thr, sigma, dc_bins)]
+    dc_line = _dc_line(excess, ratio, thr, sigma, dc_bins) if sv.is_complex else None
+    split_dc = dc_bins.copy()  # a line at DC may be a carrier: its sideband lines must not split the band
+    if dc_line is not None:
+        split_dc[dc_line[0]] = False
+    groups = [part for g in widened for part in _split_carriers(g, excess, ratio, thr, sigma, split_dc)]
+    dc_group = _dc_line_group(groups, dc_line, dc_bins) if dc_line is not None else None
+    groups = _join_sidebands(groups, excess, int(math.ceil(_SIDEBAND_REACH_HZ / df)))
+    dc_carrier = _accept_dc_carrier(groups, dc_group, excess, sigma, dc_bins) if dc_group is not None else None
+    # a carrier at 0 Hz (a baseband centred on its channel) is measured like any other: its
+    # band is no longer left to the DC offset
+    measure_dc = dc_bins.copy()
+    measure_usable = usable.copy()
+    if dc_carrier is not None:
+        span = np.zeros(n, dtype=bool)
+        span[groups[dc_carrier].ext_lo : groups[dc_carrier].ext_hi + 1] = True
+        measure_dc &= ~span
+        measure_usable |= dc_bins & span
 
     # --- measure each group
     fine_data = None
@@ -233,8 +261,10 @@ def analyse_spectra(
     owner = np.full(n, -1, dtype=np.int64)
     for i, g in enumerate(groups):
         owner[g.ext_lo : g.ext_hi + 1] = i
-    ctx = _Ctx(f, p, excess, sigma, ratio, dc_bins, usable, spec, fine_data, owner)
+    ctx = _Ctx(f, p, excess, sigma, ratio, measure_dc, measure_usable, spec, fine_data, owner, dc_carrier is not None)
     emissions = [_measure(sv, g, ctx, i) for i, g in enumerate(groups, start=1)]
+    if sv.raster is not None:
+        emissions = snap_emissions(emissions, sv.raster, stacklevel=3)
 
     # --- DC offset (IQ only)
     dc = None
@@ -252,6 +282,7 @@ def analyse_spectra(
             "spike_above_floor_db": spike,
             "visible": bool(spike >= sv.threshold_db),
             "excluded_hz": [lo_dc + shift, hi_dc + shift],
+            "carrier_emission": None if dc_carrier is None else dc_carrier + 1,
         }
 
     # --- false alarms
@@ -286,6 +317,7 @@ def analyse_spectra(
         samples=sv.samples_fed,
         raster=sv.raster.name if sv.raster is not None else None,
         floor_range_dbfs_per_hz=(float(floor_db[usable].min()), float(floor_db[usable].max())),
+        raster_rule=raster_rule(sv.raster) if sv.raster is not None else None,
     )
 
 
@@ -343,6 +375,161 @@ def _split_carriers(
         start = cut + 1
     parts.append(_Group(start, g.ext_hi, start, g.ext_hi))
     return [_with_peak(part, excess, sigma, dc_bins) for part in parts]
+
+
+def _join_sidebands(groups: list[_Group], excess: np.ndarray, reach_bins: int) -> list[_Group]:
+    """Join to each carrier line the separate groups that are its sidebands.
+
+    A tone of 1.5 kHz or more leaves its sideband lines more than ``merge_gap_hz`` from the carrier,
+    with only noise between, so they are detected as groups of their own. Starting from the strongest
+    carrier line, the groups nearest to it on either side (out to 5 kHz, nothing unjoined in between)
+    are taken for its sidebands when the spectrum mirrored about the carrier holds the same power within
+    3 dB (AM by a real message has a spectrum mirrored about its carrier) and each side is at least
+    2.5 dB below the carrier line (at most 100 % modulation puts at most half the carrier power in a
+    sideband). A group in the mirrored span is joined too; a one-sided neighbour (an SSB signal, a
+    DSB-SC one centred elsewhere) has no mirror image and stays its own emission.
+    """
+    if len(groups) < 2:
+        return groups
+    alive = [True] * len(groups)
+    carriers = sorted((i for i, g in enumerate(groups) if g.line),
+                      key=lambda i: -float(excess[groups[i].peak]))
+    for i in carriers:
+        if not alive[i]:
+            continue
+        g = groups[i]
+        pos = g.peak + g.delta
+        carrier = float(np.sum(np.maximum(excess[max(0, g.peak - 2) : g.peak + 3], 0.0)))
+        joined = True
+        while joined:
+            joined = False
+            # the nearest unjoined group on each side; the sidebands are what lies next to the carrier
+            nearest = [j for j in (_next_alive(alive, i, -1), _next_alive(alive, i, +1)) if j is not None]
+            for j in sorted(nearest, key=lambda j: abs(0.5 * (groups[j].ext_lo + groups[j].ext_hi) - pos)):
+                mirror = _mirror_partners(groups, alive, i, j, excess, carrier, reach_bins)
+                if mirror is None:
+                    continue
+                for m in (j, *mirror):
+                    h = groups[m]
+                    g.lo, g.hi = min(g.lo, h.lo), max(g.hi, h.hi)
+                    g.ext_lo, g.ext_hi = min(g.ext_lo, h.ext_lo), max(g.ext_hi, h.ext_hi)
+                    alive[m] = False
+                # the band is the carrier's: the mirrored span of a sideband is part of it
+                span = max(pos - g.ext_lo, g.ext_hi - pos)
+                g.ext_lo = max(0, int(math.floor(pos - span)))
+                g.ext_hi = min(excess.size - 1, int(math.ceil(pos + span)))
+                joined = True
+                break
+    return [g for g, keep in zip(groups, alive) if keep]
+
+
+def _dc_line(
+    excess: np.ndarray, ratio: np.ndarray, thr: float, sigma: np.ndarray, dc_bins: np.ndarray
+) -> tuple[int, float] | None:
+    """A line in the DC bins of an IQ capture that may be a carrier: (bin, Grandke offset), or None.
+
+    A baseband centred on its channel (``iqsift demod --baseband`` writes one) has its carrier
+    within the bins left to the receiver's DC offset. The strongest DC bin is offered when it is
+    shaped like a Hann main lobe and, scalloping-corrected as for detection (its ``ratio`` is
+    corrected in place), above the threshold; :func:`_accept_dc_carrier` keeps it only if AM
+    sidebands are mirrored about it.
+    """
+    k_dc = np.nonzero(dc_bins)[0]
+    if k_dc.size == 0:
+        return None
+    k = int(k_dc[np.argmax(excess[k_dc])])
+    line, delta = _line_at(excess, k, sigma)
+    if not line or ratio[k] <= 1.0:
+        return None
+    floor_k = excess[k] / (ratio[k] - 1.0)  # ratio = p / floor and excess = p - floor
+    ratio[k] = 1.0 + excess[k] / hann_response(delta) ** 2 / floor_k
+    return (k, delta) if ratio[k] >= thr else None
+
+
+def _dc_line_group(groups: list[_Group], dc_line: tuple[int, float], dc_bins: np.ndarray) -> int:
+    """Index of the group that takes the DC line as its peak (one is made when none holds it)."""
+    k, delta = dc_line
+    k_dc = np.nonzero(dc_bins)[0]
+    for i, g in enumerate(groups):
+        if g.ext_lo <= k <= g.ext_hi:
+            g.peak, g.line, g.delta = k, True, delta
+            return i
+    at = sum(1 for g in groups if g.ext_hi < k)
+    lo, hi = int(k_dc[0]), int(k_dc[-1])
+    groups.insert(at, _Group(lo, hi, lo, hi, k, True, delta))
+    return at
+
+
+def _accept_dc_carrier(
+    groups: list[_Group], dc_line: int, excess: np.ndarray, sigma: np.ndarray, dc_bins: np.ndarray
+) -> int | None:
+    """Index of the group whose carrier is the DC line, or None (the line is left to the DC offset).
+
+    Accepted when there is sideband power above the noise on both sides of the line, the two sides
+    within ±6 dB of each other (the class rule for A3E) and each at least 2.5 dB below the line (at most
+    100 % modulation). Otherwise the group falls back to its strongest bin outside the DC guard, or is
+    dropped when it held nothing but the line.
+    """
+    k = -1
+    for i, g in enumerate(groups):  # the group holding the line after sidebands were joined
+        if g.line and dc_bins[g.peak]:
+            dc_line, k = i, g.peak
+    g = groups[dc_line]
+    if k >= 0:
+        lower = np.arange(g.ext_lo, max(g.ext_lo, k - 2))
+        upper = np.arange(k + 3, g.ext_hi + 1)
+        line = float(np.sum(np.maximum(excess[max(0, k - 2) : k + 3], 0.0)))
+        sides = [float(np.sum(excess[b])) for b in (lower, upper)]
+        noise = [5.0 * 1.5 * float(np.sqrt(np.sum(sigma[b] ** 2))) for b in (lower, upper)]
+        if (
+            lower.size and upper.size and all(sd > nz for sd, nz in zip(sides, noise))
+            and abs(_db(sides[1]) - _db(sides[0])) <= _SYMMETRIC_DB
+            and max(sides) <= line * 10.0 ** (-_SIDEBAND_BELOW_DB / 10.0)
+        ):
+            return dc_line
+    if np.all(dc_bins[g.ext_lo : g.ext_hi + 1]):
+        del groups[dc_line]
+    else:
+        _with_peak(g, excess, sigma, dc_bins)
+    return None
+
+
+def _next_alive(alive: list[bool], i: int, step: int) -> int | None:
+    """Index of the next group still on its own from group i in one direction, or None."""
+    j = i + step
+    while 0 <= j < len(alive) and not alive[j]:
+        j += step
+    return j if 0 <= j < len(alive) else None
+
+
+def _mirror_partners(
+    groups: list[_Group], alive: list[bool], i: int, j: int, excess: np.ndarray, carrier: float, reach_bins: int
+) -> tuple[int, ...] | None:
+    """The groups lying in the mirror image of group j about carrier group i, if j is i's sideband; else None."""
+    g, h = groups[i], groups[j]
+    pos = g.peak + g.delta
+    if max(abs(h.ext_lo - pos), abs(h.ext_hi - pos)) > reach_bins:
+        return None
+    lo = int(math.floor(2.0 * pos - h.ext_hi))
+    hi = int(math.ceil(2.0 * pos - h.ext_lo))
+    if lo < 0 or hi >= excess.size:
+        return None
+    side = float(np.sum(excess[h.ext_lo : h.ext_hi + 1]))
+    image = float(np.sum(excess[lo : hi + 1]))
+    if side <= 0.0 or image <= 0.0 or abs(_db(side) - _db(image)) > _MIRROR_DB:
+        return None
+    if max(side, image) > carrier * 10.0 ** (-_SIDEBAND_BELOW_DB / 10.0):
+        return None
+    # groups in the image must be images themselves (lie inside it, give or take the window's spread)
+    slack = 3 + int(0.1 * (hi - lo))
+    partners = []
+    for m, other in enumerate(groups):
+        if m in (i, j) or not alive[m] or other.ext_hi < lo or other.ext_lo > hi:
+            continue
+        if other.ext_lo < lo - slack or other.ext_hi > hi + slack:
+            return None
+        partners.append(m)
+    return tuple(partners)
 
 
 def _with_peak(g: _Group, excess: np.ndarray, sigma: np.ndarray, dc_bins: np.ndarray) -> _Group:
@@ -404,7 +591,7 @@ def _measure(sv: Surveyor, g: _Group, ctx: _Ctx, index: int) -> DetectedEmission
     occ, occ_lo, occ_hi = occupied_bandwidth(f[sel], pos)
     if fine_data is not None:
         ff, pf, floor_f = fine_data[:3]
-        dc_hz = DC_GUARD_BINS * df * (1.0 + 1e-9) if sv.is_complex else -1.0
+        dc_hz = DC_GUARD_BINS * df * (1.0 + 1e-9) if sv.is_complex and not ctx.dc_carrier else -1.0
         sel_f = np.nonzero((ff >= f[m_lo] - 0.5 * df) & (ff <= f[m_hi] + 0.5 * df))[0]
         pos_f = np.where(np.abs(ff[sel_f]) <= dc_hz, 0.0, np.maximum(pf[sel_f] - floor_f[sel_f], 0.0))
         if sel_f.size >= 2 and np.any(pos_f > 0):
@@ -523,17 +710,6 @@ def _measure(sv: Surveyor, g: _Group, ctx: _Ctx, index: int) -> DetectedEmission
     bandwidth = _channel_width(cls, needed)
     shift = sv.center_hz or 0.0
     freq_abs = freq_rel + shift
-    raster_name = raster_freq = raster_err = channel_name = None
-    if sv.raster is not None:
-        grid = sv.raster
-        raster_freq = float(grid.frequency(grid.index(freq_abs)))
-        raster_err = float(freq_abs - raster_freq)
-        raster_name = grid.name
-        if grid.name in ("25k", "8.33k"):
-            try:
-                channel_name = aero_channel_name(raster_freq, grid.name, tolerance_hz=1.0)
-            except ParameterError:
-                channel_name = None
     return DetectedEmission(
         index=index,
         frequency_hz=float(freq_abs),
@@ -556,8 +732,4 @@ def _measure(sv: Surveyor, g: _Group, ctx: _Ctx, index: int) -> DetectedEmission
         x_db_hz=float(xdb),
         bandwidth_hz=bandwidth,
         designator=designator(bandwidth, cls),
-        raster_name=raster_name,
-        raster_frequency_hz=raster_freq,
-        raster_error_hz=raster_err,
-        channel_name=channel_name,
     )

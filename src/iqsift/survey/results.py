@@ -65,11 +65,17 @@ class DetectedEmission:
     designator : str
         ITU emission designator, e.g. ``"6K00A3E"``.
     raster_name : str or None
-        Raster the carrier was snapped to.
+        Raster the carrier was snapped to (None: no raster asked for, or not snapped).
     raster_frequency_hz, raster_error_hz : float or None
-        Nearest grid point and measured − grid (Hz).
+        The grid point it was snapped to and measured − grid (Hz).
     channel_name : str or None
         ICAO aeronautical channel name (8.33k/25k rasters, inside the band).
+    raster_tolerance_hz : float or None
+        The snap tolerance that was met (Hz), when snapped.
+    raster_reason : str or None
+        Why a raster was asked for and the carrier was not snapped (it keeps its
+        measured frequency): the raster is not for its class, the nearest point is
+        beyond the tolerance, or a nearer emission took that point.
     """
 
     index: int
@@ -97,6 +103,8 @@ class DetectedEmission:
     raster_frequency_hz: float | None = None
     raster_error_hz: float | None = None
     channel_name: str | None = None
+    raster_tolerance_hz: float | None = None
+    raster_reason: str | None = None
 
     @property
     def nominal_frequency_hz(self) -> float:
@@ -114,7 +122,9 @@ class DetectedEmission:
                 "name": self.raster_name,
                 "frequency_hz": self.raster_frequency_hz,
                 "error_hz": self.raster_error_hz,
+                "tolerance_hz": self.raster_tolerance_hz,
             }
+        reason = {} if self.raster_reason is None else {"raster_reason": self.raster_reason}
         return {
             "index": self.index,
             "frequency_hz": self.frequency_hz,
@@ -142,6 +152,7 @@ class DetectedEmission:
                 "channel_hz": self.bandwidth_hz,
             },
             "raster": raster,
+            **reason,
             "channel_name": self.channel_name,
         }
 
@@ -183,6 +194,9 @@ class SurveyResult:
     samples : int
         Samples analysed.
     raster : str or None
+    raster_rule : dict or None
+        The raster's snapping rule (:func:`iqsift.survey.snapping.raster_rule`): name,
+        step, tolerance (Hz), emission classes it is for, description.
     """
 
     emissions: list[DetectedEmission]
@@ -202,6 +216,7 @@ class SurveyResult:
     samples: int
     raster: str | None = None
     floor_range_dbfs_per_hz: tuple[float, float] = (float("nan"), float("nan"))
+    raster_rule: dict[str, Any] | None = None
 
     def to_dict(self) -> dict[str, Any]:
         """JSON-ready view (spectra summarised, not listed bin by bin)."""
@@ -231,5 +246,6 @@ class SurveyResult:
             "expected_false_detections": self.expected_false_detections,
             "dc_offset": self.dc_offset,
             "raster": self.raster,
+            **({} if self.raster_rule is None else {"raster_rule": self.raster_rule}),
             "emissions": [e.to_dict() for e in self.emissions],
         }
