@@ -153,7 +153,11 @@ class ChannelDesign:
     def settle_samples(self) -> int:
         """Channel-rate samples at the start of a run that the front end's filters compute partly from the
         zeros before the first input sample (their warm-up): ceil(L / D) for a filter chain spanning L
-        input samples. Levels and measurements leave them out; the audio and the baseband keep them."""
+        input samples. Levels and measurements leave them out; the audio and the baseband keep them.
+
+        For the fast-convolution engine L is the prototype's span: the bank's effective response (the
+        prototype's spectrum cut to the kept bins, which reach past its stopband edge) has all but less
+        than -``atten_db`` of its energy there, so the warm-up beyond it is below the stopband level."""
         if self.engine == "fft":
             span = self.fft_prototype.num_taps - 1
         else:
