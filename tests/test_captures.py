@@ -228,6 +228,22 @@ def test_audio_writer_counts_clipping(tmp_path):
     assert rate == 8000 and data[1] == pytest.approx(32767 / 32768)
 
 
+@pytest.mark.parametrize("finished", [True, False])
+def test_clipping_is_reported_only_for_a_file_left_behind(tmp_path, finished):
+    # a job interrupted after its audio was written discards it: no warning may name that file
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        outputs = OutputSet()
+        writer = AudioWriter(tmp_path / "d.wav", 8000, outputs=outputs)
+        writer.write(np.array([0.5, 1.5]))
+        writer.close()
+        assert not caught  # not yet: the file is not in place
+        outputs.commit() if finished else outputs.abort()
+    assert (tmp_path / "d.wav").exists() is finished
+    assert [str(w.message) for w in caught] == ([f"{tmp_path / 'd.wav'}: 1 audio samples clipped at full scale"]
+                                                 if finished else [])
+
+
 def test_stats_against_numpy(rng):
     # Reference: direct numpy formulas (DESIGN.md: dBFS = 10 log10 mean |x|^2) on the whole array.
     n = 50000

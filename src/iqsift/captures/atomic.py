@@ -147,6 +147,15 @@ class OutputSet:
         self._pending: list[tuple[Path, Path]] = []
         self._committed: list[Path] = []
         self._made_folders: list[Path] = []
+        self._after_commit: list[Callable[[], object]] = []
+
+    def after_commit(self, action: Callable[[], object]) -> None:
+        """Run ``action`` once the outputs are in place (not at all if they are discarded).
+
+        For what concerns a finished output, such as a warning that names it: an interrupted
+        job must not speak of a file it does not leave behind.
+        """
+        self._after_commit.append(action)
 
     def make_folder(self, path: str | os.PathLike[str], parents: bool = False) -> Path:
         """Create the folder ``path`` if it does not exist, and remember it for :meth:`abort`.
@@ -224,6 +233,9 @@ class OutputSet:
         except BaseException:
             self.abort()  # whatever was not renamed
             raise
+        actions, self._after_commit = self._after_commit, []
+        for action in actions:
+            action()
         return done
 
     def abort(self) -> None:
@@ -233,6 +245,7 @@ class OutputSet:
                 with contextlib.suppress(FileNotFoundError):
                     temp.unlink()
             self._pending = []
+            self._after_commit = []
             for folder in reversed(self._made_folders):  # deepest first
                 with contextlib.suppress(OSError):  # not empty (someone else's file): keep it
                     folder.rmdir()

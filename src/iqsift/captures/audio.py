@@ -157,10 +157,13 @@ class AudioWriter:
             return
         self._closed = True
         self._file.close()
-        if self.clipped_samples:
-            warnings.warn(f"{self.path}: {self.clipped_samples} audio samples clipped at full scale", IqsiftWarning)
+        if self.clipped_samples:  # said once the file exists
+            self._outputs.after_commit(self._warn_clipped)
         if self._own_outputs:
             self._outputs.commit()
+
+    def _warn_clipped(self) -> None:
+        warnings.warn(f"{self.path}: {self.clipped_samples} audio samples clipped at full scale", IqsiftWarning)
 
     def abort(self) -> None:
         """Discard the file."""

@@ -25,6 +25,8 @@ _COLUMNS: tuple[tuple[str, str, str], ...] = (
     ("stop Hz", "stopband_hz", "hz"),
     ("ripple dB", "measured_ripple_db", ".4f"),
     ("atten dB", "measured_atten_db", ".2f"),
+    ("e2e ripple dB", "measured_end_to_end_ripple_db", ".4f"),
+    ("e2e atten dB", "measured_end_to_end_atten_db", ".2f"),
     ("delay ms", "group_delay_s", "ms"),
     ("MACs/in", "macs_per_input_sample", ".3f"),
     ("MACs/chain in", "macs_per_chain_input_sample", ".3f"),
@@ -64,7 +66,9 @@ def format_design(design_dict: Mapping[str, Any] | Sequence[Mapping[str, Any]]) 
         a bare list of stage dicts, or one stage dict. Rows read the keys
         ``name`` (else ``index``), ``kind``, ``rate_in_hz``, ``rate_out_hz``,
         ``num_taps``, ``passband_hz``, ``stopband_hz``, ``measured_ripple_db``,
-        ``measured_atten_db``, ``group_delay_s``, ``macs_per_input_sample`` (per
+        ``measured_atten_db`` (from the taps), ``measured_end_to_end_ripple_db`` and
+        ``measured_end_to_end_atten_db`` (through the engine's whole path, e.g. the
+        fast-convolution bank's bin selection and frame overlap), ``group_delay_s``, ``macs_per_input_sample`` (per
         sample entering that stage) and ``macs_per_chain_input_sample``; a missing
         key shows as ``-``, so FFT or other stage dicts fit too. For a chain dict
         a summary follows (rates, MACs per chain input sample, group delay,

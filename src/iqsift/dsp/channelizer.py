@@ -262,6 +262,122 @@ class FastConvChannelizer:
         """Carrier left after mixing by the nearest bin (Hz), for the fine mixer."""
         return self._residual[channel]
 
+    def kept_band_hz(self, channel: int = 0) -> tuple[float, float]:
+        """Lowest and highest bin frequency a channel keeps, relative to the capture centre (Hz).
+
+        Everything outside lies beyond the channel's cut and reaches its output only through the
+        frame's rectangular window (see :meth:`tone_gain`)."""
+        ch = self.channels[channel]
+        k = self.fft_size // ch.decimation
+        bin_hz = self.rate_hz / self.fft_size
+        return (self._k0[channel] - k // 2) * bin_hz, (self._k0[channel] + k - k // 2 - 1) * bin_hz
+
+    def tone_gain(self, freqs_hz: np.ndarray, channel: int = 0) -> np.ndarray:
+        """Steady-state RMS output of a channel for unit complex tones, computed exactly (no simulation).
+
+        Parameters
+        ----------
+        freqs_hz : array_like
+            Tone frequencies relative to the capture centre (Hz).
+        channel : int
+            Which channel.
+
+        Returns
+        -------
+        ndarray
+            RMS output amplitude per tone (same scale as :meth:`process`; the real-input factor 2 included).
+
+        Notes
+        -----
+        The bank is linear and periodically time-varying: frame ``i`` of a tone ``exp(j2π f n / fs)``
+        is frame 0 times ``exp(j2π f s_i / fs)``, and the frame phase correction has unit magnitude,
+        so every frame yields the same output samples up to a common phase, and the output power of
+        one frame is the steady-state power of the stream. Frame 0's spectrum is the rectangular-window
+        transform ``X[k] = (1 - e^{j2πu}) / (1 - e^{j2π(u-k)/N})``, ``u = f N / fs`` (``X[k] = N`` where
+        ``u - k`` is a multiple of ``N``); the output is the channel's ``K``-point inverse transform of
+        ``X`` times its filter row, over the frame's valid samples. This includes everything the
+        engine does: the bin selection (a tone outside the kept bins leaks in through the window and
+        is cancelled only as far as the channel filter's response spans less than the frame's
+        history), the overlap and the decimation.
+        """
+        u = np.atleast_1d(np.asarray(freqs_hz, dtype=np.float64)) / self.rate_hz * self.fft_size
+        k, members, idx, filt, _ = next(g for g in self._groups if channel in g[1])
+        row = members.index(channel)
+        n = self.fft_size
+        bins = idx[row].astype(np.float64)
+        taps_row = filt[row].astype(np.complex128)
+        skip = self.history // (n // k)
+        count = self.hop // (n // k)
+        rot_bins = np.exp(-2j * np.pi * bins / n)
+        # a tone on a bin (u whole) is periodic in the frame: all of its energy, N, lands on that bin
+        whole = np.abs(u - np.round(u)) < 1e-9
+        u = np.where(whole, np.round(u), u)
+        out = np.empty(u.size)
+        step = max(1, (1 << 19) // k)
+        for first in range(0, u.size, step):
+            uu = u[first : first + step, None]
+            den = 1.0 - np.exp(2j * np.pi * uu / n) * rot_bins[None, :]
+            on_bin = whole[first : first + step, None] & (np.mod(uu - bins[None, :], n) == 0)
+            den[on_bin] = 1.0
+            spectrum = (1.0 - np.exp(2j * np.pi * uu)) / den
+            spectrum[on_bin] = n
+            spectrum *= taps_row[None, :]
+            y = scipy.fft.ifft(spectrum, axis=-1, overwrite_x=True)[:, skip : skip + count]
+            out[first : first + step] = np.sqrt(np.mean(y.real**2 + y.imag**2, axis=-1))
+        return out
+
+    def measure_channel(self, channel: int, passband_hz: float, stopband_hz: float) -> tuple[float, float]:
+        """A channel's end-to-end passband ripple and stopband attenuation, from :meth:`tone_gain`.
+
+        Parameters
+        ----------
+        channel : int
+            Which channel.
+        passband_hz, stopband_hz : float
+            Passband and stopband edges as distances from the channel filter's centre (Hz).
+
+        Returns
+        -------
+        ripple_db : float
+            Peak-to-peak ripple of the output level over the passband (dB).
+        atten_db : float
+            Least attenuation of the output level, relative to a tone at the filter centre, over
+            every frequency of the capture band at least ``stopband_hz`` from the centre, either side (dB).
+
+        Notes
+        -----
+        Grid (in bins of the transform): eight points per bin over the kept bins and eight bins
+        beyond either end (the filter's own response and the cut); further out, where a tone
+        reaches the output only through the frame's window, its level is ``|sin πu|`` times a
+        factor that varies smoothly with the distance to the kept bins, so it is evaluated at
+        half-bin offsets (``|sin πu| = 1``) with a stride of 1/32 of that distance; plus the exact
+        band edges. The extremes of the grid are the result.
+        """
+        ch = self.channels[channel]
+        n, k = self.fft_size, self.fft_size // ch.decimation
+        bin_hz = self.rate_hz / n
+        centre = ch.carrier_hz + ch.center_offset_hz
+        k0 = self._k0[channel]
+        fine = k0 - k // 2 - 8 + np.arange(8 * (k + 16)) / 8.0
+        far_bins = []
+        if k < n:
+            for side in (1, -1):
+                edge = k0 + (k - k // 2 - 1 + 8 if side > 0 else -(k // 2) - 8)
+                distance, end = 0.5, (n - k) / 2.0
+                while distance < end:
+                    far_bins.append(edge + side * distance)
+                    distance += max(1.0, math.floor(distance / 32.0))
+        edges = centre + np.array([0.0, passband_hz, -passband_hz, stopband_hz, -stopband_hz])
+        freqs = np.concatenate([(np.concatenate([fine, far_bins]) if far_bins else fine) * bin_hz, edges])
+        gains = self.tone_gain(freqs, channel)
+        # distance from the filter centre within the capture band (the bank's spectrum repeats every rate)
+        distance_hz = np.abs((freqs - centre + 0.5 * self.rate_hz) % self.rate_hz - 0.5 * self.rate_hz)
+        inside = gains[distance_hz <= passband_hz]
+        stop = gains[distance_hz >= stopband_hz * (1 - 1e-12)]
+        ripple_db = 20.0 * math.log10(inside.max() / inside.min())
+        atten_db = -20.0 * math.log10(stop.max() / gains[-5]) if stop.size and stop.max() > 0 else math.inf
+        return float(ripple_db), float(atten_db)
+
     def reset(self) -> None:
         """Forget all input; the next sample is sample 0 again."""
         self._buffer = np.zeros(self.history, np.complex64)  # history (zeros before the start) + pending input

@@ -8,13 +8,14 @@ time-domain engine) and the audio resampler, and checks that the channel fits th
 from __future__ import annotations
 
 import dataclasses
+import functools
 import math
 from dataclasses import dataclass
 from fractions import Fraction
 from typing import Any
 
 from ..channel import Channel
-from ..dsp.channelizer import choose_fft_size, power_of_two_decimation, smooth_numbers
+from ..dsp.channelizer import BankChannel, FastConvChannelizer, choose_fft_size, power_of_two_decimation, smooth_numbers
 from ..dsp.filters import (
     MAX_TAPS,
     FilterTooLongError,
@@ -29,7 +30,17 @@ from ..dsp.filters import (
 from ..errors import ParameterError
 from ..units import format_hz
 
-__all__ = ["ChannelDesign", "design_channel", "fft_decimation"]
+__all__ = ["ChannelDesign", "design_channel", "fft_decimation", "MIN_TRANSITION_SHARE", "FFT_ATTEN_MARGIN_DB"]
+
+MIN_TRANSITION_SHARE = 0.25
+"""Narrowest transition a channel filter is fitted to when the channel's own does not fit the capture band,
+as a share of the channel's: the filter is then at most four times longer, and its stopband starts at the
+band edge (a narrower one would put the passband edge against the capture's own band edge)."""
+
+FFT_ATTEN_MARGIN_DB = 2.0
+"""Extra attenuation the fast-convolution prototype is designed for: the bank drops every bin beyond the
+channel's, and the prototype's response cut off there (at its stopband level) leaks a little through the
+frames' edges (measured end to end: up to 1.5 dB above the prototype's own stopband)."""
 
 
 @dataclass(frozen=True)
@@ -63,6 +74,10 @@ class ChannelDesign:
     fft_size, fft_hop : int or None
         The fast-convolution bank's transform length and hop (input samples); a shared bank
         sets its own (:meth:`with_bank`).
+    transition_hz : float or None
+        The channel filter's transition as designed (Hz); None: the channel's own. Narrower when the
+        channel's does not fit the capture band, or (fast-convolution engine) when the bank's cut-off
+        would fall inside it; ``transition_reason`` then says which.
     """
 
     rate_hz: float
@@ -79,6 +94,8 @@ class ChannelDesign:
     polyphase_plan: DecimationPlan | None = None
     fft_size: int | None = None
     fft_hop: int | None = None
+    transition_hz: float | None = None
+    transition_reason: str | None = None
 
     def with_bank(self, fft_size: int, hop: int) -> "ChannelDesign":
         """The same design run in a shared bank of transform length ``fft_size`` and ``hop``."""
@@ -94,6 +111,30 @@ class ChannelDesign:
     def half_width_hz(self) -> float:
         lo, hi = self.channel.passband_hz
         return 0.5 * (hi - lo)
+
+    @property
+    def transition(self) -> float:
+        """The channel filter's transition width as designed (Hz)."""
+        return self.channel.transition if self.transition_hz is None else self.transition_hz
+
+    def bank_channel(self) -> BankChannel:
+        """This channel's entry in a fast-convolution bank."""
+        return BankChannel(self.carrier_offset_hz, self.channel.passband_hz, self.fft_prototype.taps, self.decimation)
+
+    @functools.cached_property
+    def end_to_end(self) -> tuple[float, float]:
+        """Passband ripple (dB p-p) and stopband attenuation (dB) of the fast-convolution front end measured
+        through the engine's own path: bin selection, frame overlap and decimation, in this design's bank
+        (:meth:`FastConvChannelizer.measure_channel`), over the prototype's passband and from its stopband
+        edge to either edge of the capture band."""
+        p = self.fft_prototype
+        if self.decimation == 1:
+            # every bin is kept and the history covers the filter: overlap-save is exactly the linear
+            # convolution with the taps, whose measurement this already is
+            return p.measured_ripple_db, p.measured_atten_db
+        bank = FastConvChannelizer(self.rate_hz, [self.bank_channel()], real_input=self.real_input,
+                                   fft_size=self.fft_size, workers=1)
+        return bank.measure_channel(0, p.passband_hz, p.stopband_hz)
 
     @property
     def fft_prototype(self) -> LowpassDesign:
@@ -114,7 +155,11 @@ class ChannelDesign:
     def settle_samples(self) -> int:
         """Channel-rate samples at the start of a run that the front end's filters compute partly from the
         zeros before the first input sample (their warm-up): ceil(L / D) for a filter chain spanning L
-        input samples. Levels and measurements leave them out; the audio and the baseband keep them."""
+        input samples. Levels and measurements leave them out; the audio and the baseband keep them.
+
+        For the fast-convolution engine L is the prototype's span: the bank's effective response (the
+        prototype's spectrum cut to the kept bins, which reach past its stopband edge) has all but less
+        than -``atten_db`` of its energy there, so the warm-up beyond it is below the stopband level."""
         if self.engine == "fft":
             span = self.fft_prototype.num_taps - 1
         else:
@@ -154,6 +199,8 @@ class ChannelDesign:
                 "filter_centre_hz": self.filter_centre_hz,
                 "channel_passband_hz": [lo, hi],
                 **filter_summary(p),
+                "measured_end_to_end_ripple_db": self.end_to_end[0],
+                "measured_end_to_end_atten_db": self.end_to_end[1],
                 "macs_per_input_sample": fwd + inv,
                 "macs_per_chain_input_sample": fwd + inv,
             })
@@ -194,7 +241,9 @@ class ChannelDesign:
             "carrier_offset_hz": self.carrier_offset_hz,
             "ripple_db": self.ripple_db,
             "atten_db": self.atten_db,
-            "transition_hz": self.channel.transition,
+            "transition_hz": self.transition,
+            "channel_transition_hz": self.channel.transition,
+            **({"transition_reason": self.transition_reason} if self.transition_reason else {}),
             "real_input": self.real_input,
             "macs_per_input_sample": macs,
             "stages": stages,
@@ -231,48 +280,52 @@ def design_channel(
 ) -> ChannelDesign:
     """Design the chain for ``channel`` in a capture at ``rate_hz`` centred on ``center_hz``.
 
-    The channel rate is the input rate divided by the largest power of two
-    that keeps it at least ``max(3 × top, top + edge)``, where ``top`` is the
-    outermost passband edge and ``edge`` the outermost stopband edge relative
-    to the carrier: the passband sits inside the middle two thirds of the
-    channel band, and in the polyphase engine nothing beyond the stopband edge
-    can fold back into the passband. (The FFT engine discards everything
-    outside the channel's bins, so its channel filter is, in effect, cut off
-    at half the channel rate.) The prototype's passband edge is the passband
-    half-width and its stopband edge lies one transition further out.
+    Polyphase engine: the channel rate is the input rate divided by the largest
+    power of two that keeps it at least ``max(3 × top, top + edge)``, where
+    ``top`` is the outermost passband edge and ``edge`` the outermost stopband
+    edge relative to the carrier: the passband sits inside the middle two
+    thirds of the channel band, and nothing beyond the stopband edge can fold
+    back into the passband. FFT engine: the channel rate is at least
+    ``max(2.5 × top, 2 × edge)`` plus a bin and a half either side, so the bins
+    the bank keeps reach past the stopband edge (see the comment below), at a
+    whole decimation chosen by :func:`fft_decimation`. The prototype's passband
+    edge is the passband half-width and its stopband edge lies one transition
+    further out; where that reaches outside the capture band, the transition is
+    narrowed to fit (down to :data:`MIN_TRANSITION_SHARE` of the channel's) and
+    the design says so (``transition_reason``).
 
     Raises
     ------
     ParameterError
-        If the channel's filter reaches beyond the capture band, the capture
-        is too slow for the channel, or the engine is unknown.
+        If the channel's filter reaches beyond the capture band even with the
+        narrowest transition, the capture is too slow for the channel, or the
+        engine is unknown.
     """
     if engine not in ("fft", "polyphase"):
         raise ParameterError(f"engine: got {engine!r}; it must be 'fft' or 'polyphase'")
     offset = channel.carrier_offset(center_hz)
     lo, hi = channel.passband_hz
-    t = channel.transition
-    low_edge, high_edge = offset + lo - t, offset + hi + t
-    nyquist = rate_hz / 2
-    band_lo = 0.0 if real_input else -nyquist
-    where = _channel_where(channel, center_hz)
-    if low_edge < band_lo or high_edge > nyquist:
-        span = (f"{_fmt(center_hz + band_lo)}..{_fmt(center_hz + nyquist)}" if center_hz is not None
-                else f"offsets {_fmt(band_lo)}..{_fmt(nyquist)}")
-        raise ParameterError(
-            f"channel {where}: its filter ({_fmt_rel(low_edge, center_hz)}..{_fmt_rel(high_edge, center_hz)}) "
-            f"reaches outside the capture band ({span})"
-        )
+    t, reason = _fitted_transition(rate_hz, channel, offset, center_hz, real_input)
     edge = max(abs(lo - t), abs(hi + t))
     top = max(abs(lo), abs(hi))
+    where = _channel_where(channel, center_hz)
+    atten_fft = atten_db + FFT_ATTEN_MARGIN_DB
     if engine == "fft":
-        # The bank keeps only the channel's own bins, so nothing outside them can alias; but cutting the
-        # filter's response off at the edge of those bins lengthens its impulse response, which then wraps
-        # around the overlap-save frame. The cut must therefore fall well down the transition band, where
-        # the response is already > 60 dB down: at least 80 % of the way to the stopband edge (measured:
-        # a neighbour 40 dB stronger 8.33 kHz away stays > 70 dB down). And the passband keeps a fifth of
-        # the channel band spare on each side for the audio filters.
-        min_rate = max(2.5 * top, 2.0 * (top + 0.8 * t))
+        # The bank keeps only the channel's own bins, so nothing outside them can alias; but dropping the
+        # others multiplies the prototype's spectrum by a rectangle. Where the response is still high at
+        # that cut, the effective impulse response grows far longer than the overlap-save frame's history
+        # and wraps around: a tone just beyond the cut leaks in as lines at the frame rate (a -6 dBFS tone
+        # 5.1 kHz off a 6 kHz AM channel came out only 58 dB down with the cut 86 % of the way through the
+        # transition, and a -60 dBFS channel beside a -10 dBFS tone there kept 17.7 dB audio SNR). So the
+        # kept bins reach past the stopband edge, by one bin (bounded through the FFT size >= 4 x the
+        # filter's span and Kaiser's length formula) plus the carrier's rounding to a bin (half a bin):
+        # the prototype is cut where it is already below the stated attenuation, and a neighbour just
+        # past the stopband edge is filtered, not leaked. And the passband keeps a fifth of the channel
+        # band spare on each side for the audio filters.
+        bin_hz = 2.285 * 2.0 * math.pi * t / (4.0 * (atten_fft - 7.95))
+        min_rate = max(2.5 * top, 2.0 * (edge + 1.5 * bin_hz))
+        if min_rate > rate_hz >= 2.5 * top:
+            min_rate = rate_hz  # no decimation: every bin is kept, nothing is cut off
     else:
         # decimating stages fold everything beyond the stopband edge: it must land outside the passband
         min_rate = max(3.0 * top, top + edge)
@@ -294,7 +347,7 @@ def design_channel(
             # the ripple specification. An equiripple design that spends the whole 0.1 dB would by itself limit
             # the recovered message to about 45 dB SNR (tones falling on ripple peaks and troughs), and its
             # exchange search costs start-up time.
-            prototype = design_lowpass(rate_hz, half, half + t, ripple_db, atten_db, method="kaiser")
+            prototype = design_lowpass(rate_hz, half, half + t, ripple_db, atten_fft, method="kaiser")
             history = int(math.ceil((prototype.num_taps - 1) / decimation)) * decimation
             fft_size = choose_fft_size(history, decimation)
             hop = ((fft_size - history) // decimation) * decimation
@@ -342,6 +395,32 @@ def design_channel(
         polyphase_plan=plan,
         fft_size=fft_size,
         fft_hop=hop,
+        transition_hz=t,
+        transition_reason=reason,
+    )
+
+
+def _fitted_transition(rate_hz: float, channel: Channel, offset_hz: float, center_hz: float | None,
+                       real_input: bool) -> tuple[float, str | None]:
+    """The channel's transition (Hz), narrowed (down to :data:`MIN_TRANSITION_SHARE` of it) so the filter's
+    stopband edges stay inside the capture band, with the reason when narrowed (a baseband iqsift wrote at the
+    channel rate holds the channel band and little more)."""
+    lo, hi = channel.passband_hz
+    t = channel.transition
+    nyquist = rate_hz / 2
+    band_lo = 0.0 if real_input else -nyquist
+    room = min(nyquist - (offset_hz + hi), (offset_hz + lo) - band_lo)
+    if room >= t:
+        return t, None
+    if room >= MIN_TRANSITION_SHARE * t:
+        return room, f"narrowed from {t:g} Hz to fit the capture band"
+    low_edge, high_edge = offset_hz + lo - t, offset_hz + hi + t
+    span = (f"{_fmt(center_hz + band_lo)}..{_fmt(center_hz + nyquist)}" if center_hz is not None
+            else f"offsets {_fmt(band_lo)}..{_fmt(nyquist)}")
+    raise ParameterError(
+        f"channel {_channel_where(channel, center_hz)}: its filter ({_fmt_rel(low_edge, center_hz)}.."
+        f"{_fmt_rel(high_edge, center_hz)}) reaches outside the capture band ({span}), and even a transition of "
+        f"{MIN_TRANSITION_SHARE:g} x {t:g} Hz does not fit"
     )
 
 

@@ -112,8 +112,7 @@ class FftFrontEnd(Stage):
 
 def bank_channel(design: ChannelDesign) -> BankChannel:
     """The filter-bank entry for a designed channel."""
-    return BankChannel(design.carrier_offset_hz, design.channel.passband_hz, design.fft_prototype.taps,
-                       design.decimation)
+    return design.bank_channel()
 
 
 def front_end_for(design: ChannelDesign, workers: int | None = None) -> Stage:

@@ -151,6 +151,11 @@ Class guess (a guess from the averaged spectrum, with a ``confidence``)
       edge for ``lsb``). This frequency is an estimate good to about a bin plus
       1 % of the width, not a measurement of a carrier.
 
+Channel basebands
+    A baseband iqsift wrote (``--baseband``) records the passband it was filtered to
+    (``iqsift:channel.passband_hz``); only that band is searched, since outside it lies
+    filtered-away noise that would pull the noise floor down.
+
 Channel bandwidth (``bandwidth_hz``, used in the designator and the plan)
     The measured width needed around the carrier, rounded up (to 100 Hz for
     single sideband, 500 Hz for double sideband up to 20 kHz, else 1 kHz), and

@@ -181,6 +181,8 @@ def analyse_spectra(
     # --- bins analysed
     lo_edge = sv.edge_guard * rate if not sv.is_complex else -(0.5 - sv.edge_guard) * rate
     hi_edge = (0.5 - sv.edge_guard) * rate
+    if sv.band_hz is not None:  # a filtered baseband: nothing but filtered-away noise outside its passband
+        lo_edge, hi_edge = max(lo_edge, sv.band_hz[0]), min(hi_edge, sv.band_hz[1])
     usable = (f >= lo_edge) & (f <= hi_edge)
     dc_bins = np.zeros(n, dtype=bool)
     if sv.is_complex:

@@ -144,6 +144,10 @@ class Surveyor:
         Fraction of the rate left out at each band edge (0 to 0.2).
     merge_gap_hz : float, default 1000
         Detected runs closer than this are one emission (Hz, >= 0).
+    band_hz : (float, float), optional
+        Search only between these frequencies relative to the centre (Hz), e.g. the passband a
+        channel baseband was filtered to: outside it the noise is filtered away, and a floor taken
+        across both would put the passband's own noise above the threshold.
 
     Notes
     -----
@@ -163,6 +167,7 @@ class Surveyor:
         resolution_hz: float | None = None,
         edge_guard: float = DEFAULT_EDGE_GUARD,
         merge_gap_hz: float = DEFAULT_MERGE_GAP_HZ,
+        band_hz: tuple[float, float] | None = None,
     ) -> None:
         self.threshold_db = _check_threshold(threshold_db)
         self.raster = parse_raster(raster) if raster is not None else None
@@ -185,6 +190,15 @@ class Surveyor:
         if not (math.isfinite(gap) and gap >= 0.0):
             raise ParameterError(f"merge_gap_hz: {merge_gap_hz!r}; it must be a finite number of Hz >= 0")
         self.merge_gap_hz = gap
+        self.band_hz: tuple[float, float] | None = None
+        if band_hz is not None:
+            try:
+                lo, hi = (float(v) for v in band_hz)
+            except (TypeError, ValueError):
+                raise ParameterError(f"band_hz: expected (low, high) in Hz, got {band_hz!r}") from None
+            if not (math.isfinite(lo) and math.isfinite(hi) and lo < hi):
+                raise ParameterError(f"band_hz: {band_hz!r}; expected finite low < high in Hz")
+            self.band_hz = (lo, hi)
         self.rate_hz = float(rate_hz)
         self.center_hz = None if center_hz is None else float(center_hz)
         self.is_complex = bool(is_complex)
@@ -316,6 +330,7 @@ def survey_capture(
     if selection is None:
         selection = capture.select()
     centre = capture.center_for(selection)
+    passband = baseband_passband_hz(capture.metadata)
     sv = Surveyor(
         capture.sample_rate_hz,
         selection.count,
@@ -326,6 +341,7 @@ def survey_capture(
         resolution_hz=resolution_hz,
         edge_guard=edge_guard,
         merge_gap_hz=merge_gap_hz,
+        band_hz=passband,
     )
     blocks: Iterable[np.ndarray] = capture.blocks(start=selection.start, count=selection.count, nonfinite=nonfinite)
     if wrap_blocks is not None:
@@ -333,3 +349,17 @@ def survey_capture(
     for block in blocks:
         sv.feed(block)
     return sv.result()
+
+
+def baseband_passband_hz(metadata: dict[str, Any]) -> tuple[float, float] | None:
+    """The passband (Hz, relative to the centre) of a channel baseband iqsift wrote, from its SigMF metadata.
+
+    ``iqsift:channel.passband_hz`` (see :mod:`iqsift.captures.sigmf`); ``None`` for any other capture.
+    """
+    channel = metadata.get("iqsift:channel")
+    band = channel.get("passband_hz") if isinstance(channel, dict) else None
+    try:
+        lo, hi = (float(v) for v in band)  # type: ignore[union-attr]
+    except (TypeError, ValueError):
+        return None
+    return (lo, hi) if math.isfinite(lo) and math.isfinite(hi) and lo < hi else None
