@@ -18,6 +18,7 @@ except ImportError:  # pragma: no cover - depends on the installed typer
 from typer import Abort, Exit
 
 from ..errors import IqsiftError
+from . import batch_cmd as _batch  # noqa: F401
 from . import demod as _demod  # noqa: F401  (each import registers a command)
 from . import design_cmd as _design  # noqa: F401
 from . import extract_cmd as _extract  # noqa: F401

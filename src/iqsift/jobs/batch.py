@@ -495,8 +495,8 @@ def _tasks(captures: Sequence[CaptureItem], plan: str | os.PathLike[str] | None,
         capture, own_plan = item if isinstance(item, tuple) else (item, None)
         chosen = own_plan if own_plan is not None else plan
         if chosen is None:
-            raise ParameterError(f"plan: none given for {os.fspath(capture)} (give plan, or a plan on its "
-                                 "manifest line)", parameters=("plan",))
+            raise ParameterError(f"plan: none given for {os.fspath(capture)}; give plan, or write each "
+                                 "capture's TOML after it in the manifest", parameters=("plan",))
         plan_path = os.path.abspath(chosen)
         if plan_path not in plan_digests:
             load_plan(plan_path)
@@ -529,7 +529,7 @@ def _earlier_lines(folder: Path) -> dict[str, Mapping[str, Any]]:
             line = json.loads(text)
             lines[line["capture"]] = line
         except (ValueError, KeyError, TypeError):
-            raise ParameterError(f"resume: {path}, line {number}, is not a batch line; cannot resume from it",
+            raise ParameterError(f"resume: {path}, line {number}, is not a batch line; cannot continue that batch",
                                  parameters=("resume",)) from None
     return lines
 
@@ -561,12 +561,12 @@ def _check_outputs(folder: Path, tasks: Sequence[CaptureTask], *, force: bool, r
         if target.exists():
             raise OutputExistsError(f"{target}: exists; pass force to replace it"
                                     + ("" if resume else " (or resume to keep intact outputs)"),
-                                    parameters=("force",))
+                                    parameters=("force", "resume"))
     if not resume:
         for name in (BATCH_LOG, ACTIVITY_CSV):
             if (folder / name).exists():
                 raise OutputExistsError(f"{folder / name}: exists; pass force to overwrite it, or resume to "
-                                        "continue that batch", parameters=("force",))
+                                        "continue that batch", parameters=("force", "resume"))
 
 
 def _remove_staging(folder: Path) -> None:
@@ -599,8 +599,8 @@ def _connected(client: Client | None, workers: int | None, scheduler: str | None
         try:
             remote = Client(scheduler) if scheduler is not None else Client(scheduler_file=scheduler_file)
         except (OSError, TimeoutError, ValueError) as exc:
-            raise ParameterError(f"{name}: cannot reach the Dask scheduler {scheduler or scheduler_file}: "
-                                 f"{_one_line(exc)}", parameters=(name,)) from None
+            raise ParameterError(f"{name}: cannot connect to {scheduler or scheduler_file}: {_one_line(exc)}",
+                                 parameters=(name,)) from None
         with remote:
             yield remote, {"kind": "address" if scheduler is not None else "scheduler_file",
                            "address": _address(remote)}
@@ -712,7 +712,7 @@ def batch_files(
     chosen = [n for n, v in (("client", client), ("workers", workers), ("scheduler", scheduler),
                              ("scheduler_file", scheduler_file)) if v is not None]
     if len(chosen) > 1:
-        raise ParameterError(f"{', '.join(chosen)}: give one way to reach workers, not several",
+        raise ParameterError(f"{', '.join(chosen)}: give one way to reach a cluster, not several",
                              parameters=tuple(chosen))
     if workers is not None and workers < 1:
         raise ParameterError(f"workers: got {workers}; at least 1", parameters=("workers",))
