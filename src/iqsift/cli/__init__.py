@@ -33,7 +33,16 @@ def _show_warning(message: Warning | str, category: type[Warning], filename: str
 
 def load_app() -> "Typer":
     """The typer application with every command registered."""
-    from . import demod, design_cmd, extract_cmd, info, measure_cmd, survey_cmd, synth_cmd  # noqa: F401  (each registers a command)
+    from . import (  # noqa: F401  (each registers a command)
+        batch_cmd,
+        demod,
+        design_cmd,
+        extract_cmd,
+        info,
+        measure_cmd,
+        survey_cmd,
+        synth_cmd,
+    )
     from .app import app as application
 
     return application
@@ -81,7 +90,7 @@ def _run(args: list[str]) -> int:
     try:  # typer >= 0.20 vendors click; older releases depend on it
         from typer._click.exceptions import ClickException
     except ImportError:  # pragma: no cover - depends on the installed typer
-        from click import ClickException  # type: ignore[import-not-found, no-redef]
+        from click import ClickException  # type: ignore[import-not-found, no-redef, assignment, unused-ignore]
 
     warnings.showwarning = _show_warning
     try:

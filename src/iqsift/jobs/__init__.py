@@ -10,12 +10,14 @@ calls them directly::
     result.receiver.channel["level_dbfs"], result.to_dict()      # the JSON `iqsift demod --json` prints
 
     report = extract_file("capture.sigmf-meta", "plan.toml", "out/")  # what `iqsift extract` writes
+    batch = batch_files(["a.sigmf-meta", "b.sigmf-meta"], "plan.toml", "runs/")  # `iqsift batch`, on Dask
 
 A capture is given as a path (the job opens and closes it) or as an opened
 :class:`~iqsift.captures.Capture`. Every result's ``to_dict()`` carries ``schema`` (the name of its
 JSON Schema in ``iqsift/schemas/``) and ``iqsift_version``.
 """
 
+from .batch import ActivitySegment, BatchResult, CaptureOutcome, OutputFile, batch_files
 from .common import CaptureSummary, SelectionSummary
 from .demod import DemodOutputs, DemodResult, demod_file
 from .design import DesignReport, design_report
@@ -26,6 +28,9 @@ from .survey import SurveyReport, survey_file
 from .synth import SynthReport, synth_file
 
 __all__ = [
+    "ActivitySegment",
+    "BatchResult",
+    "CaptureOutcome",
     "CaptureSummary",
     "ChannelResult",
     "ChannelMeasurement",
@@ -35,10 +40,12 @@ __all__ = [
     "ExtractResult",
     "InfoResult",
     "MeasureResult",
+    "OutputFile",
     "SelectionSummary",
     "SurveyReport",
     "SynthReport",
     "WEIGHTINGS",
+    "batch_files",
     "demod_file",
     "design_report",
     "extract_file",

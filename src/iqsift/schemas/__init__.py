@@ -15,8 +15,10 @@ from ..errors import ParameterError
 
 __all__ = ["SCHEMA_NAMES", "load_schema"]
 
-SCHEMA_NAMES = ("info-v1", "design-v1", "demod-v1", "measure-v1", "survey-v1", "extract-v1", "synth-v1")
-"""The schemas shipped, one per command (``demod``'s also covers ``--report``; ``extract``'s ``report.json``)."""
+SCHEMA_NAMES = ("info-v1", "design-v1", "demod-v1", "measure-v1", "survey-v1", "extract-v1", "synth-v1",
+                "batch-v1")
+"""The schemas shipped, one per command (``demod``'s also covers ``--report``; ``extract``'s ``report.json``;
+``batch``'s lines are its ``batch.jsonl``)."""
 
 
 @lru_cache(maxsize=None)

@@ -1,0 +1,768 @@
+"""The ``batch`` job: many captures, each extracted exactly as ``iqsift extract`` would, on Dask's scheduler.
+
+Each capture is one task: :func:`~iqsift.jobs.extract_file` into a hidden staging folder beside its
+final place, then one rename of the whole folder, so ``out_dir/<stem>/`` is either complete or absent
+(a task that fails, or a worker killed halfway, leaves only a staging folder, removed when the batch
+ends). Tasks run on Dask's distributed scheduler: a local cluster of worker processes by default, or a
+running cluster given by address or scheduler file, whose workers must see the captures and the output
+folder under the same paths (shared storage). Dask and distributed are imported only when a batch
+runs, never when iqsift is imported.
+
+The batch folder also gets ``batch.jsonl`` (one line per capture: status, error, outputs with their
+SHA-256, timings, versions) and ``activity.csv`` (every channel's activity across captures, with
+absolute UTC times where a capture states ``core:datetime``), both written atomically.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import csv
+import glob
+import hashlib
+import json
+import os
+import platform
+import re
+import shlex
+import shutil
+import sys
+import time
+import uuid
+import warnings
+from dataclasses import dataclass, replace
+from datetime import datetime, timedelta, timezone
+from pathlib import Path
+from typing import TYPE_CHECKING, Any, Iterable, Iterator, Literal, Mapping, Sequence, Union
+
+from .. import __version__
+from ..captures.atomic import write_atomically
+from ..errors import IqsiftError, OutputExistsError, ParameterError
+from ..jsonable import dumps, to_jsonable
+from ..plan import load_plan
+from .common import Progress, check_plot_format, stamped
+from .extract import ChannelResult, ExtractResult, extract_file
+
+if TYPE_CHECKING:
+    from distributed import Client, Future
+
+__all__ = [
+    "ActivitySegment",
+    "BatchResult",
+    "CaptureOutcome",
+    "OutputFile",
+    "activity_segments",
+    "batch_files",
+    "capture_stem",
+    "expand_captures",
+    "read_manifest",
+]
+
+BATCH_LOG = "batch.jsonl"
+ACTIVITY_CSV = "activity.csv"
+STAGING_MARK = ".batch-partial-"
+"""Hidden staging folders are ``.<stem>.batch-partial-<random>`` in the batch folder."""
+TASK_RETRIES = 2
+"""Dask re-runs a task whose code raised an unexpected error (storage hiccup, memory) this many times;
+a worker that dies mid-task is replaced and its task rescheduled by the scheduler itself."""
+SIGMF_SUFFIXES = (".sigmf-meta", ".sigmf-data", ".sigmf")
+ACTIVITY_COLUMNS = ("start_utc", "end_utc", "capture", "channel", "frequency_hz", "start_s", "end_s",
+                    "duration_s", "level_dbfs")
+
+CaptureItem = Union[str, "os.PathLike[str]", tuple[Union[str, "os.PathLike[str]"], Union[str, "os.PathLike[str]", None]]]
+"""A capture path, or ``(capture, plan)`` for a capture with its own plan (a manifest line)."""
+
+
+# -- naming captures ------------------------------------------------------------------------------
+def capture_stem(path: str | os.PathLike[str]) -> str:
+    """The name of a capture's output folder: its file name without ``.sigmf-meta``/``.sigmf-data``/
+    ``.sigmf`` or its last extension (``airfield.sigmf-meta`` -> ``airfield``, ``run1.cf32`` -> ``run1``)."""
+    name = Path(path).name
+    for suffix in SIGMF_SUFFIXES:
+        if name.endswith(suffix) and len(name) > len(suffix):
+            return name[: -len(suffix)]
+    return Path(name).stem
+
+
+def expand_captures(patterns: Iterable[str | os.PathLike[str]]) -> list[str]:
+    """Capture paths from paths and shell-style globs, in the order given (each glob's matches sorted).
+
+    A glob that matches nothing is refused; a plain path is kept as it is (a missing file fails its
+    own capture, not the batch). A SigMF recording matched by both its files counts once, by its
+    ``.sigmf-meta``.
+
+    Raises
+    ------
+    ParameterError
+        If a glob matches no file, or no capture is given at all.
+    """
+    found: list[str] = []
+    for pattern in patterns:
+        text = os.fspath(pattern)
+        if not os.path.exists(text) and glob.has_magic(text):
+            matches = sorted(glob.glob(text))
+            if not matches:
+                raise ParameterError(f"captures: {text!r} matches no file", parameters=("captures",))
+            found += matches
+        else:
+            found.append(text)
+    unique: dict[str, str] = {}
+    for path in found:
+        if path.endswith(".sigmf-data") and os.path.exists(path[: -len("-data")] + "-meta"):
+            path = path[: -len("-data")] + "-meta"
+        unique.setdefault(os.path.abspath(path), path)
+    if not unique:
+        raise ParameterError("captures: none given", parameters=("captures",))
+    return list(unique.values())
+
+
+def read_manifest(path: str | os.PathLike[str]) -> list[tuple[str, str | None]]:
+    """The captures a manifest lists: one per line, optionally followed by that capture's plan.
+
+    Blank lines and ``#`` comments are skipped; a path holding spaces is quoted as in a shell.
+    Relative paths are relative to the manifest's folder, so a manifest travels with its captures.
+
+    Raises
+    ------
+    ParameterError
+        If a line holds more than a capture and a plan, or the manifest lists nothing.
+    """
+    manifest = Path(path)
+    base = manifest.parent
+    items: list[tuple[str, str | None]] = []
+    for number, line in enumerate(manifest.read_text(encoding="utf-8").splitlines(), start=1):
+        try:
+            fields = shlex.split(line, comments=True)
+        except ValueError as exc:
+            raise ParameterError(f"manifest {manifest}, line {number}: {exc}", parameters=("manifest",)) from None
+        if not fields:
+            continue
+        if len(fields) > 2:
+            raise ParameterError(f"manifest {manifest}, line {number}: got {len(fields)} fields; a line holds a "
+                                 "capture and optionally its plan (quote paths holding spaces)",
+                                 parameters=("manifest",))
+        capture = str(base / fields[0])
+        items.append((capture, str(base / fields[1]) if len(fields) == 2 else None))
+    if not items:
+        raise ParameterError(f"manifest {manifest}: lists no capture", parameters=("manifest",))
+    return items
+
+
+# -- typed results --------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class OutputFile:
+    """One file a capture's task wrote: ``path`` relative to the batch folder, and its SHA-256 (hex)."""
+
+    path: str
+    sha256: str
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"path": self.path, "sha256": self.sha256}
+
+
+@dataclass(frozen=True)
+class ActivitySegment:
+    """One stretch of activity of one channel: ``capture`` (the capture's stem), ``channel`` (its plan
+    name), ``frequency_hz`` (nominal carrier, Hz; None without a centre frequency), ``start_s``/``end_s``
+    (from the capture's start, s), ``level_dbfs``, and ``start_utc``/``end_utc`` (RFC 3339, UTC, to the
+    microsecond; None unless the capture segment states ``core:datetime``)."""
+
+    capture: str
+    channel: str
+    frequency_hz: float | None
+    start_s: float
+    end_s: float
+    level_dbfs: float | None
+    start_utc: str | None
+    end_utc: str | None
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"start_utc": self.start_utc, "end_utc": self.end_utc, "capture": self.capture,
+                "channel": self.channel, "frequency_hz": self.frequency_hz, "start_s": self.start_s,
+                "end_s": self.end_s, "duration_s": self.end_s - self.start_s, "level_dbfs": self.level_dbfs}
+
+    def sort_key(self) -> tuple[Any, ...]:
+        """UTC first (fixed-width strings sort in time order), then capture time."""
+        return (self.start_utc is None, self.start_utc or "", self.capture, self.start_s, self.channel)
+
+
+@dataclass(frozen=True)
+class CaptureOutcome:
+    """What became of one capture of a batch; :meth:`to_dict` is its ``batch.jsonl`` line.
+
+    ``capture`` and ``plan`` are absolute paths; ``stem`` names the capture's folder; ``status`` is
+    ``"ok"`` or ``"failed"`` with ``error`` (one line) when failed; ``outputs`` lists every file of the
+    folder with its SHA-256; ``activity`` (for ``activity.csv``, not in the line) the channels' activity;
+    ``warnings`` what the extraction warned of; ``options`` and ``plan_sha256`` how it was made (a
+    resumed capture must match them); ``timings`` ``started_utc``, ``finished_utc``, ``elapsed_s`` (the
+    task) and ``processing_s`` (streaming); ``worker`` the Dask worker's address, ``versions`` its
+    iqsift, numpy, scipy and Python and ``worker_peak_rss_mb`` its memory high-water mark after the
+    task (MB); ``resumed`` whether it was taken over from an earlier run.
+    """
+
+    capture: str
+    stem: str
+    plan: str
+    status: Literal["ok", "failed"]
+    error: str | None
+    outputs: tuple[OutputFile, ...]
+    channels: int
+    activity: tuple[ActivitySegment, ...]
+    warnings: tuple[str, ...]
+    options: Mapping[str, Any]
+    plan_sha256: str | None
+    timings: Mapping[str, Any]
+    worker: str | None
+    versions: Mapping[str, str]
+    resumed: bool = False
+    worker_peak_rss_mb: float | None = None
+
+    def to_dict(self) -> dict[str, Any]:
+        """The capture's ``batch.jsonl`` line."""
+        line: dict[str, Any] = {"capture": self.capture, "stem": self.stem, "status": self.status}
+        if self.error is not None:
+            line["error"] = self.error
+        line.update({
+            "plan": self.plan, "plan_sha256": self.plan_sha256,
+            "folder": self.stem if self.status == "ok" else None,
+            "outputs": [o.to_dict() for o in self.outputs], "channels": self.channels,
+            "activity_segments": len(self.activity), "warnings": list(self.warnings),
+            "options": dict(self.options), "timings": dict(self.timings), "worker": self.worker,
+            "worker_peak_rss_mb": self.worker_peak_rss_mb, "versions": dict(self.versions), "resumed": self.resumed,
+        })
+        return to_jsonable(line)
+
+    @classmethod
+    def from_line(cls, line: Mapping[str, Any], activity: tuple[ActivitySegment, ...]) -> "CaptureOutcome":
+        """An earlier run's line taken over by a resumed batch."""
+        return cls(
+            capture=line["capture"], stem=line["stem"], plan=line["plan"], status=line["status"],
+            error=line.get("error"), outputs=tuple(OutputFile(o["path"], o["sha256"]) for o in line["outputs"]),
+            channels=line["channels"], activity=activity, warnings=tuple(line.get("warnings", ())),
+            options=line["options"], plan_sha256=line.get("plan_sha256"), timings=line.get("timings", {}),
+            worker=line.get("worker"), versions=line.get("versions", {}), resumed=True,
+            worker_peak_rss_mb=line.get("worker_peak_rss_mb"),
+        )
+
+
+@dataclass(frozen=True)
+class BatchResult:
+    """A finished batch: its ``folder`` (absolute), the ``cluster`` it ran on (``kind``: local, address,
+    scheduler_file, client or none; ``address``; ``workers``), the ``captures`` in the order given, every
+    channel's ``activity`` sorted by time (``activity.csv``), and ``elapsed_s`` (s)."""
+
+    folder: str
+    cluster: Mapping[str, Any]
+    captures: tuple[CaptureOutcome, ...]
+    activity: tuple[ActivitySegment, ...]
+    elapsed_s: float
+
+    schema = "batch-v1"
+
+    @property
+    def failed(self) -> tuple[CaptureOutcome, ...]:
+        return tuple(c for c in self.captures if c.status == "failed")
+
+    @property
+    def batch_log(self) -> str:
+        return str(Path(self.folder) / BATCH_LOG)
+
+    @property
+    def activity_csv(self) -> str:
+        return str(Path(self.folder) / ACTIVITY_CSV)
+
+    def to_dict(self) -> dict[str, Any]:
+        """The JSON ``iqsift batch --json`` prints."""
+        return stamped(self.schema, {
+            "folder": self.folder,
+            "cluster": dict(self.cluster),
+            "counts": {"captures": len(self.captures), "ok": len(self.captures) - len(self.failed),
+                       "failed": len(self.failed), "resumed": sum(c.resumed for c in self.captures)},
+            "captures": [c.to_dict() for c in self.captures],
+            "activity_segments": len(self.activity),
+            "outputs": {"batch_log": self.batch_log, "activity_csv": self.activity_csv},
+            "elapsed_s": self.elapsed_s,
+        })
+
+
+# -- activity in absolute time --------------------------------------------------------------------
+_RFC3339 = re.compile(r"^(\d{4}-\d{2}-\d{2})[Tt ](\d{2}:\d{2}:\d{2})(?:\.(\d+))?([Zz]|[+-]\d{2}:\d{2})$")
+
+
+def parse_utc(text: str | None) -> datetime | None:
+    """An RFC 3339 time (SigMF ``core:datetime``) as an aware UTC datetime (to the microsecond); None
+    when absent or unreadable (fractions beyond microseconds are cut: Python's datetime holds no more)."""
+    match = _RFC3339.match(text or "")
+    if match is None:
+        return None
+    date, clock, fraction, zone = match.groups()
+    try:
+        stamp = datetime.strptime(f"{date}T{clock}", "%Y-%m-%dT%H:%M:%S")
+    except ValueError:
+        return None
+    stamp = stamp.replace(microsecond=int((fraction or "0")[:6].ljust(6, "0")))
+    if zone in ("Z", "z"):
+        return stamp.replace(tzinfo=timezone.utc)
+    sign = 1 if zone[0] == "+" else -1
+    offset = timedelta(hours=int(zone[1:3]), minutes=int(zone[4:6]))
+    return (stamp - sign * offset).replace(tzinfo=timezone.utc)
+
+
+def utc_at(segments: Sequence[Mapping[str, Any]], rate_hz: float, time_s: float) -> str | None:
+    """The UTC time of capture time ``time_s``, from the capture segment holding it (None without a
+    ``datetime`` there): the segment's datetime plus the samples since its start over the rate."""
+    sample = time_s * rate_hz
+    holding = [s for s in segments if s["sample_start"] <= sample]
+    start = parse_utc(holding[-1].get("datetime")) if holding else None
+    if start is None:
+        return None
+    when = start + timedelta(seconds=(sample - holding[-1]["sample_start"]) / rate_hz)
+    return when.strftime("%Y-%m-%dT%H:%M:%S.%fZ")
+
+
+def activity_segments(report: Mapping[str, Any], capture: str) -> tuple[ActivitySegment, ...]:
+    """Every channel's activity in an extract report (``report.json``), with UTC times where known.
+
+    Parameters
+    ----------
+    report : Mapping
+        An ``extract-v1`` document.
+    capture : str
+        The name to file the segments under (the capture's stem).
+    """
+    rate_hz = report["capture"]["sample_rate_hz"]
+    segments = sorted(report["capture"]["segments"], key=lambda s: s["sample_start"])
+    found = []
+    for channel in report["channels"]:
+        for seg in channel.get("activity") or ():
+            found.append(ActivitySegment(
+                capture, channel["channel"]["name"], channel["channel"].get("frequency_hz"), seg["start_s"],
+                seg["end_s"], seg.get("level_dbfs"), utc_at(segments, rate_hz, seg["start_s"]),
+                utc_at(segments, rate_hz, seg["end_s"])))
+    return tuple(found)
+
+
+def _activity_csv(segments: Sequence[ActivitySegment]) -> Any:
+    """A writer of ``activity.csv`` for :func:`write_atomically`."""
+    def number(value: float | None, digits: int) -> str:
+        return "" if value is None else f"{value:.{digits}f}"
+
+    def write(handle: Any) -> None:
+        out = csv.writer(handle, lineterminator="\n")
+        out.writerow(ACTIVITY_COLUMNS)
+        for s in segments:
+            out.writerow([s.start_utc or "", s.end_utc or "", s.capture, s.channel, number(s.frequency_hz, 3),
+                          number(s.start_s, 6), number(s.end_s, 6), number(s.end_s - s.start_s, 6),
+                          number(s.level_dbfs, 2)])
+    return write
+
+
+# -- one capture: the task a worker runs ----------------------------------------------------------
+@dataclass(frozen=True)
+class CaptureTask:
+    """Everything a worker needs for one capture (plain data: it travels to the worker pickled)."""
+
+    capture: str
+    stem: str
+    plan: str
+    plan_sha256: str
+    folder: str
+    options: Mapping[str, Any]
+    force: bool
+
+    def failed(self, error: str, timings: Mapping[str, Any], worker: str | None = None,
+               versions: Mapping[str, str] | None = None) -> CaptureOutcome:
+        return CaptureOutcome(self.capture, self.stem, self.plan, "failed", error, (), 0, (), (), self.options,
+                              self.plan_sha256, timings, worker, versions or {})
+
+
+def _utc_now() -> str:
+    return datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%S.%fZ")
+
+
+def _one_line(exc: BaseException) -> str:
+    """An error as one line: iqsift's own in its words, anything else headed by its type."""
+    text = str(exc) if isinstance(exc, IqsiftError) else f"{type(exc).__name__}: {exc}"
+    return " ".join(text.split())
+
+
+def _versions() -> dict[str, str]:
+    import numpy
+    import scipy
+
+    return {"iqsift": __version__, "numpy": numpy.__version__, "scipy": scipy.__version__,
+            "python": platform.python_version()}
+
+
+def _worker_address() -> str | None:
+    try:
+        from distributed import get_worker
+
+        return str(get_worker().address)
+    except (ImportError, ValueError):  # run outside a Dask worker
+        return None
+
+
+def _peak_rss_mb() -> float | None:
+    """This process's peak resident memory so far (MB): a worker's high-water mark, for sizing workers."""
+    try:
+        import resource
+    except ImportError:  # not on Windows
+        return None
+    kib_or_bytes = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss  # KiB on Linux, bytes on macOS
+    return float(kib_or_bytes) * (1.0 if sys.platform == "darwin" else 1024.0) / 1e6
+
+
+def _sha256(path: Path) -> str:
+    digest = hashlib.sha256()
+    with open(path, "rb") as handle:
+        for chunk in iter(lambda: handle.read(1 << 20), b""):
+            digest.update(chunk)
+    return digest.hexdigest()
+
+
+def _moved(result: ExtractResult, old: Path, new: Path) -> ExtractResult:
+    """``result`` with the paths it names moved from folder ``old`` to ``new``."""
+    def move(value: Any) -> Any:
+        if isinstance(value, str) and (value == str(old) or value.startswith(str(old) + os.sep)):
+            return str(new) + value[len(str(old)):]
+        if isinstance(value, list):
+            return [move(v) for v in value]
+        return value
+
+    channels = tuple(ChannelResult(c.report, {k: move(v) for k, v in c.outputs.items()}) for c in result.channels)
+    return replace(result, folder=str(new), channels=channels)
+
+
+def _commit_folder(staging: Path, final: Path, force: bool) -> None:
+    """Rename the finished staging folder into place (replacing an old one only with ``force``)."""
+    if not (final.exists() or final.is_symlink()):
+        os.rename(staging, final)
+        return
+    if not force:
+        raise OutputExistsError(f"{final}: appeared while the batch ran; pass force to replace it",
+                                parameters=("force",))
+    old = final.with_name(f".{final.name}{STAGING_MARK}{uuid.uuid4().hex[:8]}-old")
+    os.rename(final, old)
+    os.rename(staging, final)
+    if old.is_dir() and not old.is_symlink():
+        shutil.rmtree(old)
+    else:
+        old.unlink()
+
+
+def run_capture(task: CaptureTask) -> CaptureOutcome:
+    """Extract one capture into ``<folder>/<stem>/`` through a staging folder (the task a worker runs).
+
+    A capture iqsift refuses (unreadable, plan outside its band ...) gives a failed outcome, not an
+    exception: running it again would fail the same way. Any other exception is raised for Dask to
+    retry. Either way the staging folder is removed.
+    """
+    started, t0 = _utc_now(), time.perf_counter()
+    folder = Path(task.folder)
+    final = folder / task.stem
+    staging = folder / f".{task.stem}{STAGING_MARK}{uuid.uuid4().hex[:12]}"
+    try:
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            result = _moved(extract_file(task.capture, task.plan, staging, force=False, **task.options),
+                            staging, final)
+        (staging / "report.json").write_text(dumps(result.to_dict()), encoding="utf-8")
+        report = result.to_dict()
+        outputs = tuple(OutputFile(str(Path(task.stem) / p.relative_to(staging)), _sha256(p))
+                        for p in sorted(staging.rglob("*")) if p.is_file())
+        _commit_folder(staging, final, task.force)
+    except IqsiftError as exc:
+        shutil.rmtree(staging, ignore_errors=True)
+        return task.failed(_one_line(exc), {"started_utc": started, "finished_utc": _utc_now(),
+                                            "elapsed_s": time.perf_counter() - t0},
+                           _worker_address(), _versions())
+    except BaseException:
+        shutil.rmtree(staging, ignore_errors=True)
+        raise
+    said = tuple(" ".join(str(w.message).replace(str(staging), str(final)).split()) for w in caught)
+    timings = {"started_utc": started, "finished_utc": _utc_now(), "elapsed_s": time.perf_counter() - t0,
+               "processing_s": result.processing_s, "capture_s": result.selection.duration_s}
+    return CaptureOutcome(task.capture, task.stem, task.plan, "ok", None, outputs, len(result.channels),
+                          activity_segments(report, task.stem), said, task.options, task.plan_sha256, timings,
+                          _worker_address(), _versions(), worker_peak_rss_mb=_peak_rss_mb())
+
+
+# -- the batch ------------------------------------------------------------------------------------
+def _batch_folder(out_dir: str | os.PathLike[str]) -> Path:
+    folder = Path(os.path.abspath(out_dir))
+    if folder.exists() and not folder.is_dir():
+        raise ParameterError(f"out_dir {out_dir}: exists and is not a folder", parameters=("out_dir",))
+    if not folder.parent.is_dir():
+        raise ParameterError(f"out_dir {out_dir}: the folder {folder.parent} does not exist", parameters=("out_dir",))
+    return folder
+
+
+def _tasks(captures: Sequence[CaptureItem], plan: str | os.PathLike[str] | None, folder: Path,
+           options: Mapping[str, Any], force: bool) -> list[CaptureTask]:
+    """One task per capture; plans read (and so checked) here, stems checked unique, before any work."""
+    tasks: list[CaptureTask] = []
+    plan_digests: dict[str, str] = {}
+    stems: dict[str, str] = {}
+    if not captures:
+        raise ParameterError("captures: none given", parameters=("captures",))
+    for item in captures:
+        capture, own_plan = item if isinstance(item, tuple) else (item, None)
+        chosen = own_plan if own_plan is not None else plan
+        if chosen is None:
+            raise ParameterError(f"plan: none given for {os.fspath(capture)}; give plan, or write each "
+                                 "capture's TOML after it in the manifest", parameters=("plan",))
+        plan_path = os.path.abspath(chosen)
+        if plan_path not in plan_digests:
+            load_plan(plan_path)
+            plan_digests[plan_path] = _sha256(Path(plan_path))
+        capture_path = os.path.abspath(capture)
+        stem = capture_stem(capture_path)
+        if stem in (BATCH_LOG, ACTIVITY_CSV) or stem.startswith("."):
+            raise ParameterError(f"captures: {os.fspath(capture)}: its output folder would be called {stem!r}; "
+                                 "rename the capture", parameters=("captures",))
+        if stem in stems:
+            raise ParameterError(f"captures: {stems[stem]} and {capture_path} would both write to {folder / stem}; "
+                                 "outputs are named by the capture's file name, which must be unique in a batch",
+                                 parameters=("captures",))
+        stems[stem] = capture_path
+        tasks.append(CaptureTask(capture_path, stem, plan_path, plan_digests[plan_path], str(folder),
+                                 dict(options), force))
+    return tasks
+
+
+def _earlier_lines(folder: Path) -> dict[str, Mapping[str, Any]]:
+    """The lines of an earlier run's ``batch.jsonl``, by capture path."""
+    path = folder / BATCH_LOG
+    if not path.is_file():
+        return {}
+    lines: dict[str, Mapping[str, Any]] = {}
+    for number, text in enumerate(path.read_text(encoding="utf-8").splitlines(), start=1):
+        if not text.strip():
+            continue
+        try:
+            line = json.loads(text)
+            lines[line["capture"]] = line
+        except (ValueError, KeyError, TypeError):
+            raise ParameterError(f"resume: {path}, line {number}, is not a batch line; cannot continue that batch",
+                                 parameters=("resume",)) from None
+    return lines
+
+
+def _resumable(task: CaptureTask, line: Mapping[str, Any] | None, folder: Path) -> CaptureOutcome | None:
+    """The earlier outcome of ``task`` when it is ok, made the same way, and its files are intact."""
+    if line is None or line.get("status") != "ok" or line.get("stem") != task.stem:
+        return None
+    if (line.get("plan"), line.get("plan_sha256"), line.get("options")) != (
+            task.plan, task.plan_sha256, to_jsonable(dict(task.options))):
+        return None
+    for output in line.get("outputs", ()):
+        path = folder / output["path"]
+        if not path.is_file() or _sha256(path) != output["sha256"]:
+            return None
+    report_path = folder / task.stem / "report.json"
+    if not any(o["path"] == str(Path(task.stem) / "report.json") for o in line.get("outputs", ())):
+        return None
+    report = json.loads(report_path.read_text(encoding="utf-8"))
+    return CaptureOutcome.from_line(line, activity_segments(report, task.stem))
+
+
+def _check_outputs(folder: Path, tasks: Sequence[CaptureTask], *, force: bool, resume: bool) -> None:
+    """Refuse, before any work, to replace what exists without ``force``."""
+    if force:
+        return
+    for task in tasks:
+        target = folder / task.stem
+        if target.exists():
+            raise OutputExistsError(f"{target}: exists; pass force to replace it"
+                                    + ("" if resume else " (or resume to keep intact outputs)"),
+                                    parameters=("force", "resume"))
+    if not resume:
+        for name in (BATCH_LOG, ACTIVITY_CSV):
+            if (folder / name).exists():
+                raise OutputExistsError(f"{folder / name}: exists; pass force to overwrite it, or resume to "
+                                        "continue that batch", parameters=("force", "resume"))
+
+
+def _remove_staging(folder: Path) -> None:
+    """Remove staging folders left by tasks that died (their workers killed, the batch interrupted)."""
+    if folder.is_dir():
+        for leftover in folder.glob(f".*{STAGING_MARK}*"):
+            shutil.rmtree(leftover, ignore_errors=True)
+
+
+def _local_workers(count: int) -> int:
+    cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1)
+    return max(1, min(cores, count))
+
+
+def _address(client: Client) -> str | None:
+    return None if client.scheduler is None else str(client.scheduler.address)
+
+
+@contextlib.contextmanager
+def _connected(client: Client | None, workers: int | None, scheduler: str | None, scheduler_file: str | None,
+               memory_limit: str | float | None, tasks: int) -> Iterator[tuple[Client, dict[str, Any]]]:
+    """A client of the cluster asked for; one started here (and stopped on exit) by default."""
+    import dask
+    from distributed import Client, LocalCluster
+
+    if client is not None:
+        yield client, {"kind": "client", "address": _address(client)}
+        return
+    if scheduler is not None or scheduler_file is not None:
+        name = "scheduler" if scheduler is not None else "scheduler_file"
+        try:
+            remote = Client(scheduler) if scheduler is not None else Client(scheduler_file=scheduler_file)
+        except (OSError, TimeoutError, ValueError) as exc:
+            raise ParameterError(f"{name}: cannot connect to {scheduler or scheduler_file}: {_one_line(exc)}",
+                                 parameters=(name,)) from None
+        with remote:
+            yield remote, {"kind": "address" if scheduler is not None else "scheduler_file",
+                           "address": _address(remote)}
+        return
+    count = workers if workers is not None else _local_workers(tasks)
+    # One thread per worker process: the extraction holds the GIL in numpy glue between FFTs, so
+    # processes, not threads, give the parallelism; the dashboard (an extra dependency) stays off.
+    # Dask starts workers with MALLOC_TRIM_THRESHOLD_=65536, which (glibc mallopt) also fixes the mmap
+    # threshold, so every 16 MiB block is mapped and faulted in afresh: measured, an extraction streams
+    # 55 % slower. Our tasks free their blocks as they go; the worker keeps glibc's own defaults.
+    with dask.config.set({"distributed.nanny.pre-spawn-environ.MALLOC_TRIM_THRESHOLD_": None}), \
+            LocalCluster(n_workers=count, threads_per_worker=1, processes=True, memory_limit=memory_limit,
+                         host="127.0.0.1", dashboard_address=None) as cluster, Client(cluster) as local:
+        yield local, {"kind": "local", "address": cluster.scheduler_address}
+
+
+def _collected(future: Future, task: CaptureTask) -> CaptureOutcome:
+    """The outcome of a finished task; a task Dask gave up on (retries spent, workers lost) fails."""
+    if future.status == "finished":
+        outcome: CaptureOutcome = future.result()
+        return outcome
+    exc = future.exception() if future.status == "error" else None
+    return task.failed(_one_line(exc) if exc is not None else f"task {future.status} by the Dask scheduler",
+                       {"finished_utc": _utc_now()})
+
+
+def _run_on_cluster(tasks: Sequence[CaptureTask], connection: Mapping[str, Any],
+                    progress: Progress | None) -> tuple[dict[str, CaptureOutcome], dict[str, Any]]:
+    from distributed import as_completed
+
+    outcomes: dict[str, CaptureOutcome] = {}
+    with _connected(tasks=len(tasks), **connection) as (client, cluster):
+        cluster["workers"] = len(client.nthreads())
+        futures = {client.submit(run_capture, task, retries=TASK_RETRIES, pure=False,
+                                 key=f"iqsift-extract-{task.stem}-{uuid.uuid4().hex[:8]}"): task for task in tasks}
+        for future in as_completed(futures):
+            task = futures[future]
+            outcomes[task.stem] = _collected(future, task)
+            future.release()
+            if progress is not None:
+                progress(1, len(tasks))
+    return outcomes, cluster
+
+
+def batch_files(
+    captures: Sequence[CaptureItem],
+    plan: str | os.PathLike[str] | None,
+    out_dir: str | os.PathLike[str],
+    *,
+    client: Client | None = None,
+    workers: int | None = None,
+    scheduler: str | None = None,
+    scheduler_file: str | os.PathLike[str] | None = None,
+    memory_limit: str | float | None = "auto",
+    spectra: bool = False,
+    plot_format: str = "png",
+    baseband: bool = False,
+    allow_nonfinite: bool = False,
+    force: bool = False,
+    resume: bool = False,
+    progress: Progress | None = None,
+    format: str | None = None,
+    rate: str | float | None = None,
+    center: str | float | None = None,
+    strict: bool = False,
+) -> BatchResult:
+    """Extract every capture with its plan, each into ``out_dir/<stem>/``, on Dask's distributed scheduler.
+
+    Each capture's folder holds exactly what :func:`extract_file` (``iqsift extract``) writes, and
+    appears complete or not at all. ``out_dir/batch.jsonl`` gets one line per capture and
+    ``out_dir/activity.csv`` every channel's activity across captures, sorted by time. A capture that
+    fails is recorded as failed and the others go on; everything the batch can check (plans, names,
+    existing outputs, options) is checked before any work.
+
+    Parameters
+    ----------
+    captures : sequence of path or (path, plan)
+        The captures (see :func:`expand_captures`, :func:`read_manifest`); a pair gives a capture its own plan.
+    plan : path or None
+        The plan of every capture that has none of its own.
+    out_dir : path
+        The batch folder (created if needed; its parent must exist).
+    client : distributed.Client, optional
+        An existing client to run on (kept open).
+    workers : int, optional
+        Worker processes of the local cluster (default: one per core, at most one per capture).
+    scheduler : str, optional
+        Address of a running Dask scheduler (``tcp://host:8786``).
+    scheduler_file : path, optional
+        The scheduler file of a running Dask scheduler (``dask scheduler --scheduler-file``).
+    memory_limit : str or float or None
+        Memory limit of each local worker process (Dask's ``memory_limit``: "auto" shares the
+        machine's memory among them, "2GiB", bytes, or None for none).
+    spectra, plot_format, baseband, allow_nonfinite, format, rate, center, strict
+        As for :func:`extract_file`, for every capture.
+    force : bool
+        Replace existing capture folders, ``batch.jsonl`` and ``activity.csv``.
+    resume : bool
+        Keep captures an earlier run of this batch finished whose listed outputs are intact (same
+        SHA-256), with the same plan and options; run the rest.
+    progress : callable, optional
+        Called with ``(1, total)`` as each capture finishes.
+
+    Raises
+    ------
+    ParameterError
+        For conflicting cluster choices, a bad plan, names that collide, or a scheduler out of reach.
+    OutputExistsError
+        If outputs exist and neither ``force`` nor (for intact ones) ``resume`` is given.
+    """
+    started = time.perf_counter()
+    check_plot_format(plot_format)
+    chosen = [n for n, v in (("client", client), ("workers", workers), ("scheduler", scheduler),
+                             ("scheduler_file", scheduler_file)) if v is not None]
+    if len(chosen) > 1:
+        raise ParameterError(f"{', '.join(chosen)}: give one way to reach a cluster, not several",
+                             parameters=tuple(chosen))
+    if workers is not None and workers < 1:
+        raise ParameterError(f"workers: got {workers}; at least 1", parameters=("workers",))
+    folder = _batch_folder(out_dir)
+    options = {"spectra": spectra, "plot_format": plot_format, "baseband": baseband,
+               "allow_nonfinite": allow_nonfinite, "format": format, "rate": rate, "center": center,
+               "strict": strict}
+    tasks = _tasks(captures, plan, folder, options, force)
+    earlier = _earlier_lines(folder) if resume else {}
+    outcomes: dict[str, CaptureOutcome] = {}
+    for task in tasks:
+        kept = _resumable(task, earlier.get(task.capture), folder)
+        if kept is not None:
+            outcomes[task.stem] = kept
+    todo = [t for t in tasks if t.stem not in outcomes]
+    _check_outputs(folder, todo, force=force, resume=resume)
+    folder.mkdir(exist_ok=True)
+    _remove_staging(folder)
+    cluster: dict[str, Any] = {"kind": "none", "address": None, "workers": 0}
+    try:
+        if todo:
+            connection = {"client": client, "workers": workers, "scheduler": scheduler,
+                          "scheduler_file": None if scheduler_file is None else os.fspath(scheduler_file),
+                          "memory_limit": memory_limit}
+            ran, cluster = _run_on_cluster(todo, connection, progress)
+            outcomes.update(ran)
+    finally:
+        _remove_staging(folder)
+    ordered = tuple(outcomes[t.stem] for t in tasks)
+    activity = tuple(sorted((s for c in ordered for s in c.activity), key=ActivitySegment.sort_key))
+    write_atomically(folder / BATCH_LOG, lambda handle: handle.writelines(
+        json.dumps(c.to_dict(), allow_nan=False) + "\n" for c in ordered), binary=False, force=True)
+    write_atomically(folder / ACTIVITY_CSV, _activity_csv(activity), binary=False, force=True)
+    return BatchResult(str(folder), cluster, ordered, activity, time.perf_counter() - started)
