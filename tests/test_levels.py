@@ -54,3 +54,33 @@ def test_warm_up_is_the_span_of_the_front_end_filters():
     assert d.settle_samples == -(-span // d.decimation)
     f = Receiver(FS, make_channel(offset=0, emission="6K00A3E")).design
     assert f.settle_samples == -(-(f.fft_prototype.num_taps - 1) // f.decimation)
+
+
+def test_one_level_convention_for_real_and_complex_captures(tmp_path):
+    # Issue [2/6] item 4: for one carrier in a real IF WAV, info/survey said -13.0 dBFS and measure/demod -9.95.
+    # Convention: a full-scale sine reads 0 dBFS (AES17-2015, its definition of "decibels, full scale"; IEC 61606),
+    # i.e. a real signal is measured by its analytic signal x + jH{x}; a complex carrier of magnitude A reads 20 log A.
+    import soundfile
+
+    from iqsift.jobs import info_file, measure_file, survey_file
+
+    rate, amp = 48_000, 0.5
+    t = np.arange(2 * rate) / rate
+    noise = 1e-4 * np.random.default_rng(4).standard_normal(t.size)
+    real = amp * np.cos(2 * np.pi * 12_000 * t) + noise
+    soundfile.write(tmp_path / "if.wav", real.astype(np.float32), rate, subtype="FLOAT")
+    cplx = amp * np.exp(2j * np.pi * 12_000 * t) + noise
+    np.stack([cplx.real, cplx.imag], 1).astype("<f4").tofile(tmp_path / "iq.raw")
+    expected = 20 * np.log10(amp)  # -6.02 dBFS
+    for path, opts in ((tmp_path / "if.wav", {}), (tmp_path / "iq.raw", {"format": "cf32_le", "rate": 48_000})):
+        info = info_file(path, **opts).to_dict()
+        survey = survey_file(path, **opts).to_dict()
+        measured = measure_file(path, make_channel(offset=12_000, emission="6K00A3E"), **opts).to_dict()
+        levels = {
+            "info rms": info["stats"]["rms_dbfs"],
+            "survey": survey["emissions"][0]["level_dbfs"],
+            "measure channel": measured["channel"]["level_dbfs"],
+            "measure carrier": measured["carrier"]["level_dbfs"],
+        }
+        for what, level in levels.items():
+            assert level == pytest.approx(expected, abs=0.05), (path.name, what, levels)

@@ -245,11 +245,14 @@ def test_no_false_detections_on_pure_noise(seed):
         assert r.emissions == []
         assert r.noise_floor_dbfs_per_hz == pytest.approx(-100.0, abs=0.15)
         assert r.expected_false_detections < 1e-9
-    # Real samples: one-sided density is twice the two-sided one (+3.01 dB; scipy.signal.welch).
+    # Real samples: one-sided density is twice the two-sided one (+3.01 dB; scipy.signal.welch), and levels of a
+    # real capture are those of its analytic signal, twice its mean square (+3.01 dB more; README "Levels").
     xr = np.sqrt(N0 * rate) * rng.standard_normal(n)
     r = Surveyor(rate, n, is_complex=False).feed(xr).result()
     assert r.emissions == [] and r.dc_offset is None
-    assert r.noise_floor_dbfs_per_hz == pytest.approx(-100.0 + 10 * math.log10(2.0), abs=0.15)
+    onesided = scipy.signal.welch(xr, rate, window="hann", nperseg=r.spectrum.nperseg, noverlap=r.spectrum.nperseg // 2)[1]
+    assert r.noise_floor_dbfs_per_hz == pytest.approx(10 * math.log10(2.0 * np.median(onesided)), abs=0.15)
+    assert r.noise_floor_dbfs_per_hz == pytest.approx(-100.0 + 2 * 10 * math.log10(2.0), abs=0.15)
 
 
 def test_sloped_floor_is_followed_without_false_detections():
@@ -413,8 +416,8 @@ def test_real_valued_capture():
     assert len(r.emissions) == 1 and r.dc_offset is None
     e = r.emissions[0]
     assert abs(e.frequency_hz - f0) < 1.0 and e.emission_class == "A3E"
-    # real tone A cos: carrier power A^2/2 (project convention: 20 log10 A - 3.01 dBFS)
-    assert e.carrier_level_dbfs == pytest.approx(20 * math.log10(amp) - 3.01, abs=0.3)
+    # real tone A cos reads 20 log10 A dBFS, as a full-scale sine reads 0 dBFS (AES17; README "Levels")
+    assert e.carrier_level_dbfs == pytest.approx(20 * math.log10(amp), abs=0.3)
 
 
 def test_library_parameter_errors():

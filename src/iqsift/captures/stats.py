@@ -1,7 +1,9 @@
 """Whole-capture statistics measured in one streaming pass (for ``iqsift info``).
 
 Levels follow DESIGN.md: complex magnitude 1.0 is 0 dBFS and power in dBFS is
-10·log10(mean |x|^2). IQ imbalance is estimated from second-order statistics
+10·log10(mean |x|^2). A real capture's RMS level is that of its analytic signal,
+10·log10(2·mean x^2), so that a full-scale sine reads 0 dBFS (AES17, IEC 61606)
+and a carrier reads the same here as in ``survey``, ``measure`` and ``demod``. IQ imbalance is estimated from second-order statistics
 of the DC-free samples: with I and Q variances σI², σQ² and covariance c,
 
 * gain imbalance (dB) = 10·log10(σI² / σQ²)
@@ -123,6 +125,8 @@ class StatsAccumulator:
         n = max(self.n, 1)
         mi, mq = self.s_i / n, self.s_q / n
         mean_power = (self.s_ii + self.s_qq) / n
+        if not self.is_complex:
+            mean_power *= 2.0  # analytic-signal power: a full-scale sine is 0 dBFS (AES17)
         gain = phase = irr = None
         if self.is_complex and self.n > 1:
             var_i = self.s_ii / n - mi * mi

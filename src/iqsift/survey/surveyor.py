@@ -9,13 +9,14 @@ longer segments; :meth:`Surveyor.result` hands them to
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 from typing import Any, Callable, Iterable, Iterator
 
 import numpy as np
 
 from ..errors import ParameterError
 from ..rasters import Raster, parse_raster
-from ..spectra import WelchAccumulator
+from ..spectra import Spectrum, WelchAccumulator
 from .analysis import analyse_spectra
 from .formulas import welch_dof
 from .results import SurveyResult
@@ -274,12 +275,34 @@ class Surveyor:
             )
         spec = self._coarse.result("density")
         fine = self._fine.result("density") if self._fine is not None and self._fine.ready else None
+        if not self.is_complex:
+            spec = analytic_levels(spec)
+            fine = None if fine is None else analytic_levels(fine)
         # equivalent degrees of freedom of each average (Welch 1967), for the noise statistics
         dof = welch_dof(self._coarse.window, self._coarse.nperseg - self._coarse.noverlap, spec.segments_averaged)
         fine_dof = None
         if fine is not None and self._fine is not None:
             fine_dof = welch_dof(self._fine.window, self._fine.nperseg - self._fine.noverlap, fine.segments_averaged)
         return analyse_spectra(self, spec, fine, dof, fine_dof)
+
+
+REAL_TO_ANALYTIC_DB = 10.0 * math.log10(2.0)
+"""A real signal's analytic representation x + j·H{x} carries twice its mean square (3.01 dB)."""
+
+
+def analytic_levels(spectrum: Spectrum) -> Spectrum:
+    """A one-sided spectrum of a real capture on iqsift's level convention (README, "Levels").
+
+    A real sine of amplitude A reads 20·log10(A) dBFS, as its analytic signal A·e^(jωt) does
+    (the full-scale-sine reference of AES17 and IEC 61606), and so as the same carrier does
+    in a complex capture and in a channel's baseband: every bin above 0 Hz gains 3.01 dB.
+    The 0 Hz and Nyquist bins have no mirror image and are kept.
+    """
+    values = np.array(spectrum.values_db)
+    f = spectrum.relative_freqs_hz
+    inner = (f > 0.0) & (f < 0.5 * spectrum.rate_hz)
+    values[inner] += REAL_TO_ANALYTIC_DB
+    return replace(spectrum, values_db=values)
 
 
 def survey_capture(
