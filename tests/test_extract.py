@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import re
 
 import numpy as np
 import pytest
@@ -88,6 +89,12 @@ def test_extract_cli(tmp_path, run_cli):
                                "--quiet")
     assert status == 2 and "exists" in err and len(err.strip().splitlines()) == 1
     assert (tmp_path / "out" / "report.json").read_bytes() == before
+    # the text summary gives the streaming time and the whole run's, plots included ([2/6] item 13)
+    status, out, err = run_cli("extract", tmp_path / "cap.sigmf-meta", "--plan", plan, "--out-dir", tmp_path / "o2",
+                               "--spectra", "--quiet")
+    assert status == 0, err
+    streaming, total = (float(v) for v in re.search(r"; ([\d.]+) s streaming the channels, ([\d.]+) s in all", out).groups())
+    assert 0 < streaming < total
 
 
 def test_extract_cli_refuses_bad_channel_without_output(tmp_path, run_cli):

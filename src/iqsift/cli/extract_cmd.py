@@ -63,7 +63,8 @@ def format_extract(result: dict) -> str:
     """Human summary of an extraction."""
     lines = [
         f"extracted {len(result['channels'])} channel(s) from {result['capture']['path']} in one pass "
-        f"({result['selection']['duration_s']:.2f} s of capture, {result['processing_s']:.2f} s processing)",
+        f"({result['selection']['duration_s']:.2f} s of capture; {result['processing_s']:.2f} s streaming the channels, "
+        f"{result['elapsed_s']:.2f} s in all)",
         f"{'channel':<24} {'frequency':>16} {'mode':>9} {'level dBFS':>11} {'carrier err Hz':>15} {'active':>7}  audio",
     ]
     for ch in result["channels"]:
