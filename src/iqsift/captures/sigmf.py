@@ -80,11 +80,11 @@ def _int_field(obj: dict[str, Any], key: str, where: str, default: int) -> int: 
 @overload
 def _int_field(obj: dict[str, Any], key: str, where: str, default: None = None) -> int | None: ...
 def _int_field(obj: dict[str, Any], key: str, where: str, default: int | None = None) -> int | None:
-    value = obj.get(key, default)
-    if value is None:
-        return None
-    if isinstance(value, bool) or not isinstance(value, int) or value < 0:
-        raise CaptureError(f"{where}: {key} must be a whole number >= 0, got {value!r}")
+    if key not in obj:
+        return default
+    value = obj[key]
+    if isinstance(value, bool) or not isinstance(value, int) or value < 0:  # a null given is not a number either
+        raise CaptureError(f"{where}: {key} must be a whole number >= 0, got {json.dumps(value)[:40]}")
     return value
 
 
@@ -135,6 +135,9 @@ def _parse_meta(
         freq = cap.get("core:frequency")
         if freq is not None and not _finite_number(freq):
             raise CaptureError(f"{where}: captures[{i}] core:frequency must be a finite number (Hz), got {freq!r}")
+        stamp = cap.get("core:datetime")
+        if stamp is not None and not isinstance(stamp, str):
+            raise CaptureError(f"{where}: captures[{i}] core:datetime must be ISO 8601 text, got {json.dumps(stamp)[:40]}")
     trailing = _int_field(glob, "core:trailing_bytes", where, 0) or 0
 
     payload = data_bytes - trailing - sum(headers)
