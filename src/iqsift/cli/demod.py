@@ -29,6 +29,7 @@ from .options import (
     NoVerifyOption,
     OffsetOption,
     OptStr,
+    PpmOption,
     PlotFormatOption,
     QuietOption,
     RateOption,
@@ -65,6 +66,7 @@ def demod(
     center: OptStr = CenterOption,
     strict: bool = StrictOption,
     no_verify: bool = NoVerifyOption,
+    ppm: Optional[float] = PpmOption,
 ) -> None:
     """Demodulate one channel to audio (AM envelope/coherent, USB, LSB, DSB)."""
     if squelch is not None and not (0 <= squelch < 200):
@@ -78,7 +80,7 @@ def demod(
             capture_path, channel, output, baseband=baseband, report=report, spectra=spectra,
             plot_format=plot_format, engine=engine, agc=agc, start=start, duration=duration,
             allow_nonfinite=allow_nonfinite, force=force, progress=progress,
-            format=format, rate=rate, center=center, strict=strict, verify=not no_verify,
+            format=format, rate=rate, center=center, strict=strict, verify=not no_verify, ppm=ppm,
         ).to_dict()
     if json_out:
         emit_json(result)

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from typing import Optional
+
 import typer
 
 from .app import app
@@ -16,6 +18,7 @@ from .options import (
     NonfiniteOption,
     NoVerifyOption,
     OptStr,
+    PpmOption,
     PlotFormatOption,
     QuietOption,
     RateOption,
@@ -43,6 +46,7 @@ def extract_command(
     center: OptStr = CenterOption,
     strict: bool = StrictOption,
     no_verify: bool = NoVerifyOption,
+    ppm: Optional[float] = PpmOption,
 ) -> None:
     """Extract every channel of a plan in one pass: <name>.wav per channel and report.json."""
     from ..jobs import extract_file  # here, not at the top: `iqsift --help` stays fast
@@ -51,7 +55,7 @@ def extract_command(
         result = extract_file(
             capture_path, plan_path, out_dir, spectra=spectra, plot_format=plot_format, baseband=baseband,
             start=start, duration=duration, allow_nonfinite=allow_nonfinite, force=force, progress=progress,
-            format=format, rate=rate, center=center, strict=strict, verify=not no_verify,
+            format=format, rate=rate, center=center, strict=strict, verify=not no_verify, ppm=ppm,
         ).to_dict()
     if json_out:
         emit_json(result)

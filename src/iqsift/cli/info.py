@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from typing import Any
+from typing import Any, Optional
 
 import typer
 
@@ -16,6 +16,7 @@ from .options import (
     JsonOption,
     NoVerifyOption,
     OptStr,
+    PpmOption,
     QuietOption,
     RateOption,
     StrictOption,
@@ -31,6 +32,7 @@ def info(
     center: OptStr = CenterOption,
     strict: bool = StrictOption,
     no_verify: bool = NoVerifyOption,
+    ppm: Optional[float] = PpmOption,
     quiet: bool = QuietOption,
 ) -> None:
     """Describe a capture and measure its levels, DC offset, clipping and IQ imbalance."""
@@ -38,7 +40,7 @@ def info(
 
     with ProgressBar("measuring", quiet) as progress:
         result = info_file(capture_path, format=format, rate=rate, center=center, strict=strict,
-                           progress=progress, verify=not no_verify).to_dict()
+                           progress=progress, verify=not no_verify, ppm=ppm).to_dict()
     if json_out:
         emit_json(result)
     else:

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import math
-from typing import Any
+from typing import Any, Optional
 
 import typer
 
@@ -21,6 +21,7 @@ from .options import (
     NonfiniteOption,
     NoVerifyOption,
     OptStr,
+    PpmOption,
     QuietOption,
     RateOption,
     StartOption,
@@ -72,6 +73,7 @@ def survey(
     center: OptStr = CenterOption,
     strict: bool = StrictOption,
     no_verify: bool = NoVerifyOption,
+    ppm: Optional[float] = PpmOption,
 ) -> None:
     """Find the emissions in a capture: frequency, level, bandwidth, class; optionally write a channel plan."""
     from ..jobs import survey_file  # here, not at the top: `iqsift --help` stays fast
@@ -83,7 +85,7 @@ def survey(
         result = survey_file(
             capture_path, threshold_db=threshold_db, raster=raster, plan_out=plan_out, resolution_hz=resolution_hz,
             start=start, duration=duration, allow_nonfinite=allow_nonfinite, force=force, progress=progress,
-            format=format, rate=rate, center=center, strict=strict, verify=not no_verify,
+            format=format, rate=rate, center=center, strict=strict, verify=not no_verify, ppm=ppm,
         )
     report = result.to_dict()
     if json_out:

@@ -55,11 +55,15 @@ def opened(
     center: str | float | None = None,
     strict: bool = False,
     verify: bool = True,
+    ppm: float | None = None,
 ) -> Iterator[Capture]:
     """The capture, opened here (and closed on exit) when given as a path; as it is when already open.
 
     With ``verify`` false the capture's recorded checksum is not checked (see
     :attr:`~iqsift.captures.Capture.verify`); an already opened capture gets its own setting back on exit.
+    With ``ppm`` the capture is read as made by a receiver whose reference ran ``ppm`` parts per million
+    fast (:meth:`~iqsift.captures.Capture.correct_reference`): its rate and centre are the true ones;
+    an already opened capture gets its own correction back on exit.
 
     Raises
     ------
@@ -71,15 +75,21 @@ def opened(
         given = [name for name, value in (("format", format), ("rate", rate), ("center", center)) if value is not None]
         if given:
             raise ParameterError(f"{', '.join(given)}: only for a capture given by path; {capture.path} is already open")
-        own_setting = capture.verify
+        own_setting, own_ppm = capture.verify, capture.reference_ppm
         capture.verify = own_setting and verify
         try:
+            if ppm is not None:
+                capture.correct_reference(ppm)
             yield capture
         finally:
             capture.verify = own_setting
+            if capture.reference_ppm != own_ppm:  # a job may correct it further (survey's estimate)
+                capture.correct_reference(own_ppm)
         return
     with open_capture(capture, format=format, rate=rate, center=center, strict=strict,
                       verify=verify) as opened_capture:
+        if ppm is not None:
+            opened_capture.correct_reference(ppm)
         yield opened_capture
 
 
@@ -125,6 +135,11 @@ class CaptureSummary:
         Length in seconds.
     segments, annotations : tuple of dict
         SigMF capture segments and annotations.
+    reference_ppm : float
+        Receiver reference error corrected for (ppm; 0: none). ``sample_rate_hz``, ``center_hz`` and the
+        segments' and annotations' frequencies are the corrected (true) ones.
+    nominal_sample_rate_hz : float
+        The sample rate the file states.
     """
 
     path: str
@@ -137,6 +152,8 @@ class CaptureSummary:
     duration_s: float
     segments: tuple[Mapping[str, Any], ...]
     annotations: tuple[Mapping[str, Any], ...]
+    reference_ppm: float = 0.0
+    nominal_sample_rate_hz: float | None = None
 
     @classmethod
     def of(cls, capture: Capture) -> "CaptureSummary":
@@ -152,6 +169,8 @@ class CaptureSummary:
             duration_s=capture.duration_s,
             segments=tuple(s.as_dict() for s in capture.segments),
             annotations=tuple(a.as_dict() for a in capture.annotations),
+            reference_ppm=capture.reference_ppm,
+            nominal_sample_rate_hz=capture.nominal_sample_rate_hz,
         )
 
     def to_dict(self) -> dict[str, Any]:
@@ -167,6 +186,11 @@ class CaptureSummary:
             "duration_s": self.duration_s,
             "segments": [dict(s) for s in self.segments],
             "annotations": [dict(a) for a in self.annotations],
+            "frequency_reference": {
+                "correction_ppm": self.reference_ppm,
+                "nominal_sample_rate_hz": (self.sample_rate_hz if self.nominal_sample_rate_hz is None
+                                           else self.nominal_sample_rate_hz),
+            },
         }
 
 

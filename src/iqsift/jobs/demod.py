@@ -105,6 +105,7 @@ def demod_file(
     center: str | float | None = None,
     strict: bool = False,
     verify: bool = True,
+    ppm: float | None = None,
 ) -> DemodResult:
     """Demodulate one channel of a capture to a WAV/FLAC file.
 
@@ -146,11 +147,14 @@ def demod_file(
         Check a SigMF capture's data against its ``core:sha512`` while reading it (when the whole
         capture is read; a part selected by ``start``/``duration`` is not checked). On a mismatch
         :class:`~iqsift.captures.ChecksumError` is raised and nothing is written.
+    ppm : float, optional
+        The receiver's reference error (ppm, positive: fast; see :mod:`iqsift.reference`): the capture's
+        rate and centre are corrected, so the channel is tuned to, and reports, true frequencies.
     """
     check_plot_format(plot_format)
     started = time.perf_counter()
     with opened(capture, format=format, rate=rate, center=center, strict=strict,
-                verify=verify) as cap:
+                verify=verify, ppm=ppm) as cap:
         selection = cap.select(start, duration)
         receiver = Receiver.for_capture(cap, channel, selection, engine=engine, agc=agc, spectra=bool(spectra))
         spectra_dir = Path(spectra) if spectra else None

@@ -120,6 +120,7 @@ def extract_file(
     center: str | float | None = None,
     strict: bool = False,
     verify: bool = True,
+    ppm: float | None = None,
 ) -> ExtractResult:
     """Extract every channel of a plan in one pass: ``<name>.wav`` per channel and ``report.json``.
 
@@ -141,8 +142,8 @@ def extract_file(
         Plot file format.
     baseband : bool
         Also write each channel's baseband as SigMF (``<name>.sigmf-meta``/``-data``).
-    start, duration, allow_nonfinite, force, progress, format, rate, center, strict, verify
-        As for :func:`demod_file`.
+    start, duration, allow_nonfinite, force, progress, format, rate, center, strict, verify, ppm
+        As for :func:`demod_file`; without ``ppm`` the plan's ``[defaults] ppm`` (if any) applies.
     """
     check_plot_format(plot_format)
     started = time.perf_counter()
@@ -152,7 +153,7 @@ def extract_file(
     if folder.exists() and not folder.is_dir():
         raise ParameterError(f"out_dir {folder}: exists and is not a folder", parameters=("out_dir",))
     with opened(capture, format=format, rate=rate, center=center, strict=strict,
-                verify=verify) as cap:
+                verify=verify, ppm=ppm if ppm is not None else plan_obj.ppm) as cap:
         selection = cap.select(start, duration)
         extractor = Extractor.from_plan(cap, plan_obj, selection=selection, spectra=spectra)
         parent = folder.parent if str(folder.parent) else Path(".")

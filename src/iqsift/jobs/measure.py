@@ -65,6 +65,7 @@ def measure_file(
     center: str | float | None = None,
     strict: bool = False,
     verify: bool = True,
+    ppm: float | None = None,
 ) -> MeasureResult:
     """Measure one channel of a capture; writes nothing.
 
@@ -82,11 +83,11 @@ def measure_file(
         x of the x-dB bandwidth (ITU-R SM.328), dB.
     threshold_db : float
         Activity threshold above the channel's noise floor, dB.
-    start, duration, allow_nonfinite, progress, format, rate, center, strict, verify
+    start, duration, allow_nonfinite, progress, format, rate, center, strict, verify, ppm
         As for :func:`demod_file`.
     """
     with opened(capture, format=format, rate=rate, center=center, strict=strict,
-                verify=verify) as cap:
+                verify=verify, ppm=ppm) as cap:
         selection = cap.select(start, duration)
         receiver = Receiver.for_capture(cap, channel, selection, agc=False).analyze(
             tone_hz=tone_hz, weighting=weighting, x_db=x_db, activity={"threshold_db": threshold_db},
