@@ -14,6 +14,7 @@ import json
 import warnings
 from pathlib import Path
 
+import jsonschema
 import pytest
 
 from iqsift import make_channel
@@ -23,6 +24,7 @@ from iqsift.jobs.synth import synth_file
 from iqsift.plan import load_plan, parse_plan
 from iqsift.reference import apparent_frequency, compose_ppm, reference_factor
 from iqsift.errors import ParameterError
+from iqsift.schemas import load_schema
 
 SAMPLES = Path(__file__).resolve().parent.parent / "sample_captures"
 PPM = 8.0
@@ -56,6 +58,12 @@ def fast_capture(tmp_path_factory) -> Path:
     return meta
 
 
+def _valid(document: dict) -> dict:
+    document = json.loads(json.dumps(document))
+    jsonschema.Draft202012Validator(load_schema(document["schema"])).validate(document)
+    return document
+
+
 def test_factor_and_worked_number():
     # the docstring's worked number (iqsift.reference): 8 ppm, 2.4 MS/s, 127.5 MHz, a transmitter at 127.35 MHz
     assert reference_factor(8) * 2.4e6 == pytest.approx(2_400_019.2, abs=1e-6)
@@ -82,7 +90,7 @@ def test_raster_estimate_of_a_fast_receiver(fast_capture, tmp_path):
     ref = report.frequency_reference
     assert ref is not None and ref.applied and len(ref.carriers_used) == 4
     assert ref.error_ppm == pytest.approx(PPM, abs=0.3)  # the test: 8 ± 0.3 ppm
-    d = report.to_dict()
+    d = _valid(report.to_dict())
     assert d["frequency_reference"]["method"] == "raster 8.33k"
     assert d["capture"]["frequency_reference"]["correction_ppm"] == pytest.approx(ref.error_ppm)
     # corrected: every carrier snaps to its own channel with a small error
@@ -114,13 +122,14 @@ def test_no_estimate_from_one_carrier(fast_capture):
         report = survey_file(fast_capture, reference_carrier=100e6)  # nothing there
     ref = report.frequency_reference
     assert ref is not None and ref.error_ppm is None and "no measured carrier" in ref.reason
+    assert _valid(report.to_dict())["frequency_reference"]["error_ppm"] is None
     assert report.capture.reference_ppm == 0.0
 
 
 @pytest.mark.parametrize("ppm, tolerance_hz", [(PPM, 1.0), (None, None)])
 def test_measure_carrier_error_with_and_without_ppm(fast_capture, ppm, tolerance_hz):
     channel = make_channel(freq=CHANNELS_HZ[2], emission="6K00A3E")
-    result = measure_file(fast_capture, channel, ppm=ppm).to_dict()
+    result = _valid(measure_file(fast_capture, channel, ppm=ppm).to_dict())
     error_hz = result["carrier"]["error_hz"]
     if ppm is not None:
         assert abs(error_hz) <= tolerance_hz  # the test: within ±1 Hz with --ppm 8
@@ -146,3 +155,19 @@ def test_plan_ppm_is_read_and_checked():
         parse_plan(text.replace("-3.5", '"fast"'))
     with pytest.raises(ParameterError, match="unknown|not"):
         parse_plan('[[channel]]\nname = "a"\nfreq = "127M"\nbandwidth = "6k"\nppm = 3\n')
+
+
+def test_cli_ppm_and_reference_carrier(fast_capture, capsys):
+    from iqsift.cli import main
+
+    assert main(["survey", str(fast_capture), "--raster", "8.33k", "-q"]) in (0, None)
+    out = capsys.readouterr().out
+    line = next(x for x in out.splitlines() if x.startswith("reference"))
+    assert "ppm" in line and "applied" in line and "4 of 4 carriers" in line
+    # a bad value: one line naming the flag, exit status 2
+    assert main(["measure", str(fast_capture), "--freq", "127.025M", "--ppm", "5000"]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "--ppm" in err[0] and "1000" in err[0]
+    assert main(["info", str(fast_capture), "--ppm", "-8", "--json"]) in (0, None)
+    info = json.loads(capsys.readouterr().out)
+    assert info["sample_rate_hz"] == pytest.approx(RATE_HZ * (1 - 8e-6), rel=1e-15)

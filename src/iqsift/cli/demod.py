@@ -67,6 +67,10 @@ def demod(
     strict: bool = StrictOption,
     no_verify: bool = NoVerifyOption,
     ppm: Optional[float] = PpmOption,
+    annotate: OptStr = typer.Option(
+        None, "--annotate", metavar="OUT.sigmf-meta",
+        help="Write SigMF metadata of the same recording with one annotation per activity segment of the "
+             "channel (the channel is then measured as by 'measure')."),
 ) -> None:
     """Demodulate one channel to audio (AM envelope/coherent, USB, LSB, DSB)."""
     if squelch is not None and not (0 <= squelch < 200):
@@ -81,6 +85,7 @@ def demod(
             plot_format=plot_format, engine=engine, agc=agc, start=start, duration=duration,
             allow_nonfinite=allow_nonfinite, force=force, progress=progress,
             format=format, rate=rate, center=center, strict=strict, verify=not no_verify, ppm=ppm,
+            annotate=annotate,
         ).to_dict()
     if json_out:
         emit_json(result)

@@ -47,6 +47,10 @@ def extract_command(
     strict: bool = StrictOption,
     no_verify: bool = NoVerifyOption,
     ppm: Optional[float] = PpmOption,
+    annotate: OptStr = typer.Option(
+        None, "--annotate", metavar="OUT.sigmf-meta",
+        help="Write SigMF metadata of the same recording with one annotation per activity segment of every "
+             "channel."),
 ) -> None:
     """Extract every channel of a plan in one pass: <name>.wav per channel and report.json."""
     from ..jobs import extract_file  # here, not at the top: `iqsift --help` stays fast
@@ -56,6 +60,7 @@ def extract_command(
             capture_path, plan_path, out_dir, spectra=spectra, plot_format=plot_format, baseband=baseband,
             start=start, duration=duration, allow_nonfinite=allow_nonfinite, force=force, progress=progress,
             format=format, rate=rate, center=center, strict=strict, verify=not no_verify, ppm=ppm,
+            annotate=annotate,
         ).to_dict()
     if json_out:
         emit_json(result)

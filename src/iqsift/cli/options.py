@@ -84,6 +84,8 @@ FLAGS: dict[str, str] = {
     "ripple_db": "--ripple",
     "atten_db": "--atten",
     "ppm": "--ppm",
+    "reference_carrier": "--reference-carrier",
+    "annotate": "--annotate",
 }
 """Python parameter name -> the flag that sets it."""
 

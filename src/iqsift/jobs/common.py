@@ -237,7 +237,7 @@ def baseband_writer(
         description=f"iqsift channel baseband of {capture.path.name}",
         extra={
             "iqsift:source": {"path": str(capture.path), "sample_start": selection.start,
-                              "sample_count": selection.count},
+                              "sample_count": selection.count, "reference_ppm": capture.reference_ppm},
             "iqsift:channel": to_jsonable(channel),
             "iqsift:design": to_jsonable(design),
         },

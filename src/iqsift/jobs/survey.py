@@ -10,7 +10,8 @@ from typing import Any, Iterable, Iterator
 
 import numpy as np
 
-from ..captures import Capture, OutputSet, input_files
+from ..captures import Capture, OutputSet, annotated_metadata, check_annotation_path, input_files
+from ..jsonable import dumps
 from ..errors import IqsiftWarning, ParameterError
 from ..rasters import Raster, parse_raster
 from ..survey import (
@@ -24,6 +25,7 @@ from ..survey import (
     survey_plan_text,
 )
 from ..units import parse_positive_hz
+from .annotations import emission_annotations
 from .common import (
     CaptureArg,
     CaptureSummary,
@@ -63,6 +65,7 @@ class SurveyReport:
     selection: SelectionSummary
     plan: str | None
     frequency_reference: FrequencyReference | None = None
+    annotations: str | None = None
 
     schema = "survey-v1"
 
@@ -71,7 +74,8 @@ class SurveyReport:
         return stamped(self.schema, {**self.survey.to_dict(), "capture": self.capture.to_dict(),
                                      "selection": self.selection.to_dict(), "plan": self.plan,
                                      "frequency_reference": (None if self.frequency_reference is None
-                                                             else self.frequency_reference.to_dict())})
+                                                             else self.frequency_reference.to_dict()),
+                                     "annotations": self.annotations})
 
 
 def survey_file(
@@ -93,6 +97,7 @@ def survey_file(
     verify: bool = True,
     ppm: float | None = None,
     reference_carrier: str | float | None = None,
+    annotate: str | os.PathLike[str] | None = None,
 ) -> SurveyReport:
     """Survey a capture in one streaming pass.
 
@@ -116,6 +121,9 @@ def survey_file(
         estimated from it. Without it, a ``raster`` estimates the error from the carriers that agree
         on it (:mod:`iqsift.survey.reference`). Unless ``ppm`` is given, an estimate is applied:
         frequencies, snapping and the plan (``[defaults] ppm``) are then true ones.
+    annotate : path, optional
+        Write SigMF metadata of the same recording (``.sigmf-meta``, in the data file's folder) with one
+        annotation per emission (:func:`~iqsift.jobs.annotations.emission_annotations`).
     """
     raster_obj = parse_raster(raster) if isinstance(raster, str) else raster
     reference_hz = (None if reference_carrier is None
@@ -125,6 +133,7 @@ def survey_file(
         plan_tmp = outputs.reserve(plan_out) if plan_out else None  # checked before any work
         with opened(capture, format=format, rate=rate, center=center, strict=strict,
                     verify=verify, ppm=ppm) as cap:
+            annotate_tmp = outputs.reserve(check_annotation_path(cap, annotate)) if annotate else None
             selection = cap.select(start, duration)
             if raster_obj is not None and cap.center_for(selection) is None:
                 raise ParameterError(
@@ -151,8 +160,14 @@ def survey_file(
                     written = str(plan_out)
                 else:
                     outputs.abort()  # no emission, no plan: leave nothing behind
+            annotated = None
+            if annotate_tmp is not None and not (plan_tmp is not None and written is None):  # not aborted
+                doc = annotated_metadata(cap, str(annotate), emission_annotations(cap, selection, found))
+                annotate_tmp.write_text(dumps(doc), encoding="utf-8")
+                annotated = str(annotate)
             return SurveyReport(found, CaptureSummary.of(cap), SelectionSummary.of(cap, selection), written,
-                                reference)
+                                reference, annotated)
+
 
 
 def _analysed(sv: Surveyor, cap: Capture, raster: Raster | None, reference_hz: float | None, *,
@@ -182,8 +197,13 @@ def _analysed(sv: Surveyor, cap: Capture, raster: Raster | None, reference_hz: f
                           IqsiftWarning, stacklevel=3)
         return sv.result(), reference
     assert reference.uncertainty_ppm is not None
-    if not correct or abs(reference.added_ppm) <= COVERAGE_FACTOR * reference.uncertainty_ppm:
-        return sv.result(), reference
+    why = None
+    if not correct:
+        why = "the error was given (ppm)"
+    elif abs(reference.added_ppm) <= COVERAGE_FACTOR * reference.uncertainty_ppm:
+        why = f"within {COVERAGE_FACTOR:g} standard uncertainties of the correction in force"
+    if why is not None:
+        return sv.result(), dataclasses.replace(reference, extra={**reference.extra, "not_applied": why})
     found = sv.result(reference_ppm=reference.added_ppm)
     cap.correct_reference(reference.error_ppm)
     return found, dataclasses.replace(reference, applied=True)
