@@ -171,3 +171,21 @@ def test_cli_ppm_and_reference_carrier(fast_capture, capsys):
     assert main(["info", str(fast_capture), "--ppm", "-8", "--json"]) in (0, None)
     info = json.loads(capsys.readouterr().out)
     assert info["sample_rate_hz"] == pytest.approx(RATE_HZ * (1 - 8e-6), rel=1e-15)
+
+
+def test_extract_applies_the_plans_ppm_and_audio_keeps_its_rate(fast_capture, tmp_path):
+    import soundfile
+
+    from iqsift.jobs import demod_file, extract_file
+
+    plan_path = tmp_path / "plan.toml"
+    survey_file(fast_capture, raster="8.33k", plan_out=plan_path)
+    result = _valid(extract_file(fast_capture, plan_path, tmp_path / "x").to_dict())
+    assert result["capture"]["frequency_reference"]["correction_ppm"] == pytest.approx(PPM, abs=0.3)
+    errors = [c["carrier"]["error_hz"] for c in result["channels"]]
+    assert len(errors) == 4 and max(abs(e) for e in errors) <= 1.0  # on their channels, as made
+    # the audio file keeps a whole rate (on the receiver's clock); the report gives the true one
+    out = demod_file(fast_capture, make_channel(freq=CHANNELS_HZ[0], emission="6K00A3E"), tmp_path / "a.wav",
+                     ppm=PPM)
+    assert soundfile.info(str(tmp_path / "a.wav")).samplerate == 16000
+    assert out.receiver.audio_rate_hz == pytest.approx(16000 * (1 + PPM * 1e-6), rel=1e-9)

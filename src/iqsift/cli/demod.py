@@ -10,7 +10,7 @@ import typer
 from ..channel import make_channel
 from ..errors import ParameterError
 from .app import app
-from .common import ProgressBar, emit_json
+from .common import ProgressBar, emit_json, reference_text
 from .options import (
     AgcOption,
     AudioRateOption,
@@ -113,4 +113,9 @@ def format_demod(result: dict) -> str:
         lines.append(f"report     {result['outputs']['report']}")
     if result["outputs"].get("spectra"):
         lines.append(f"spectra    {result['outputs']['spectra']}/ ({len(result['outputs'].get('spectra_files', []))} files)")
+    if result["outputs"].get("annotations"):
+        lines.append(f"annotated  {result['outputs']['annotations']}")
+    ref = reference_text(result.get("capture") or {})
+    if ref:
+        lines.append(f"reference  {ref}")
     return "\n".join(lines)

@@ -7,7 +7,7 @@ from typing import Optional
 import typer
 
 from .app import app
-from .common import ProgressBar, emit_json
+from .common import ProgressBar, emit_json, reference_text
 from .options import (
     CaptureArgument,
     CenterOption,
@@ -86,4 +86,9 @@ def format_extract(result: dict) -> str:
             f"{'-' if err is None else f'{err:+.2f}':>15} {len(ch.get('activity') or []):>7}  {ch['outputs']['audio']}"
         )
     lines.append(f"report: {result['outputs']['report']}")
+    if result["outputs"].get("annotations"):
+        lines.append(f"annotated: {result['outputs']['annotations']}")
+    ref = reference_text(result["capture"])
+    if ref:
+        lines.append(f"reference: {ref}")
     return "\n".join(lines)

@@ -8,7 +8,7 @@ import typer
 
 from ..units import format_hz
 from .app import app
-from .common import ProgressBar, emit_json
+from .common import ProgressBar, emit_json, reference_text
 from .options import (
     CaptureArgument,
     CenterOption,
@@ -100,4 +100,7 @@ def format_info(result: dict[str, Any]) -> str:
             f"IQ imbalance  gain {stats['gain_imbalance_db']:+.3f} dB, phase {stats['phase_imbalance_deg']:+.3f} deg, "
             f"image rejection {'>90' if irr is None or irr > 90 else f'{irr:.1f}'} dB (assumes a noise-like signal)"
         )
+    ref = reference_text(result)
+    if ref:
+        lines.append(f"reference     {ref}")
     return "\n".join(lines)

@@ -9,7 +9,7 @@ import typer
 from ..channel import make_channel
 from ..units import parse_positive_hz
 from .app import app
-from .common import ProgressBar, emit_json
+from .common import ProgressBar, emit_json, reference_text
 from .options import (
     AudioRateOption,
     BandwidthOption,
@@ -110,4 +110,7 @@ def format_measure(r: dict[str, Any]) -> str:
         lines.append(f"  {seg['start_s']:9.3f} s - {seg['end_s']:9.3f} s  {seg['level_dbfs']:.1f} dBFS")
     if len(acts) > 20:
         lines.append(f"  ... {len(acts) - 20} more (see --json)")
+    ref = reference_text(r.get("capture") or {})
+    if ref:
+        lines.append(f"reference      {ref}")
     return "\n".join(lines)

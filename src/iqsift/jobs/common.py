@@ -18,12 +18,14 @@ from .. import __version__
 from ..captures import Capture, OutputSet, SampleRange, SigMFWriter, open_capture
 from ..errors import ParameterError
 from ..jsonable import to_jsonable
+from ..reference import MAX_PPM
 
 __all__ = [
     "CaptureArg",
     "CaptureSummary",
     "Progress",
     "SelectionSummary",
+    "audio_file_rate",
     "baseband_writer",
     "check_plot_format",
     "counted",
@@ -91,6 +93,21 @@ def opened(
         if ppm is not None:
             opened_capture.correct_reference(ppm)
         yield opened_capture
+
+
+def audio_file_rate(rate_hz: float) -> float:
+    """The sample rate an audio file of audio made at ``rate_hz`` is labelled with (samples/s).
+
+    Audio files need a whole rate. A capture corrected for its receiver's reference error
+    (:mod:`iqsift.reference`) has a true rate that is not a round number (240 001.92 samples/s for
+    240 kS/s at +8 ppm), and the audio resampler's small-integer ratio then gives, say, 16 000.128
+    samples/s. Such a rate within :data:`~iqsift.reference.MAX_PPM` of a whole number is written as
+    that number: the file plays on the receiver's own clock, off by the reference error (8 ppm: 0.03 s
+    in an hour), while every time and frequency in the report is true. Other rates are returned as they
+    are (and refused by the writer).
+    """
+    whole = round(rate_hz)
+    return float(whole) if whole > 0 and abs(rate_hz / whole - 1.0) <= MAX_PPM * 1e-6 else rate_hz
 
 
 def check_plot_format(plot_format: str) -> str:

@@ -18,6 +18,7 @@ from .common import (
     CaptureSummary,
     Progress,
     SelectionSummary,
+    audio_file_rate,
     baseband_writer,
     check_plot_format,
     counted,
@@ -177,7 +178,7 @@ def demod_file(
             check_stage_plot_folder(spectra_dir, plot_format, force)  # before any work
             keeper = AudioKeeper.attach(receiver)
         with OutputSet(force=force, protect=cap.files) as outputs:
-            audio_writer = AudioWriter(output, receiver.audio_rate_hz, outputs=outputs)
+            audio_writer = AudioWriter(output, audio_file_rate(receiver.audio_rate_hz), outputs=outputs)
             report_tmp = outputs.reserve(report) if report else None
             annotate_tmp = outputs.reserve(check_annotation_path(cap, annotate)) if annotate else None
             bb_writer = None

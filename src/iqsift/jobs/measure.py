@@ -150,6 +150,7 @@ def measure_channel(
     start: Any = None,
     duration: Any = None,
     nonfinite: str = "error",
+    ppm: float | None = None,
 ) -> ChannelMeasurement:
     """Measure one channel of a capture in one streaming pass (the library form of ``iqsift measure``).
 
@@ -169,6 +170,8 @@ def measure_channel(
         Activity threshold above the noise floor (dB).
     start, duration : seconds or str, optional
         The window to analyse (see :meth:`Capture.select`).
+    ppm : float, optional
+        The receiver's reference error (ppm, positive: fast), corrected for (see :func:`demod_file`).
 
     Raises
     ------
@@ -177,7 +180,7 @@ def measure_channel(
     """
     result = measure_file(capture, channel, tone_hz=tone_hz, weighting=weighting, x_db=x_db,
                           threshold_db=threshold_db, start=start, duration=duration,
-                          allow_nonfinite=nonfinite == "zero")
+                          allow_nonfinite=nonfinite == "zero", ppm=ppm)
     report = result.receiver
     analysis = report.analysis
     assert analysis is not None  # measure_file analyses
