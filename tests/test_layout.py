@@ -13,7 +13,8 @@ MAX_LINES = 800
 
 # Layers, lowest first (DESIGN.md): a module may import from its own layer and the layers below.
 LAYERS: list[tuple[str, ...]] = [
-    ("iqsift.errors", "iqsift.checks", "iqsift.units", "iqsift.modes", "iqsift.jsonable", "iqsift.version"),
+    ("iqsift.errors", "iqsift.checks", "iqsift.units", "iqsift.modes", "iqsift.jsonable", "iqsift.version",
+     "iqsift.reference"),
     ("iqsift.emission", "iqsift.channel", "iqsift.rasters", "iqsift.plan", "iqsift.captures", "iqsift.dsp",
      "iqsift.spectra", "iqsift.schemas"),
     ("iqsift.measure", "iqsift.receiver", "iqsift.survey", "iqsift.synth", "iqsift.plots"),

@@ -47,6 +47,10 @@ How defaults combine
     - ``audio_rate``: channel, defaults, 16000; ``squelch_db``: channel,
       defaults, none.
 
+    ``[defaults] ppm`` (only there: it belongs to the receiver that made the capture, not to a
+    channel) is the receiver's reference error in ppm (:mod:`iqsift.reference`); ``extract``
+    corrects the capture for it unless given ``ppm`` itself.
+
     A mode must suit the emission in force (:func:`iqsift.emission.allowed_modes`).
 
 Errors
@@ -78,6 +82,7 @@ else:  # pragma: no cover - exercised on Python 3.10 only
 from .emission import MODES, Emission, allowed_modes, parse_emission
 from .errors import ParameterError
 from .rasters import aero_channel
+from .reference import check_ppm
 from .units import parse_frequency
 
 __all__ = [
@@ -99,7 +104,7 @@ LOCATION_KEYS = ("freq", "offset", "channel_name")
 #: Keys a [[channel]] table may hold.
 CHANNEL_KEYS = ("name", *LOCATION_KEYS, "emission", "bandwidth", "mode", "audio_low", "audio_rate", "squelch_db")
 #: Keys the [defaults] table may hold.
-DEFAULT_KEYS = ("emission", "bandwidth", "mode", "audio_low", "audio_rate", "squelch_db")
+DEFAULT_KEYS = ("emission", "bandwidth", "mode", "audio_low", "audio_rate", "squelch_db", "ppm")
 DEFAULT_AUDIO_RATE_HZ = 16000.0
 #: Lower audio edge for voice when nothing else says (common practice: 300-3400 Hz telephony band).
 DEFAULT_AUDIO_LOW_HZ = 300.0
@@ -238,10 +243,13 @@ class ChannelPlan:
     channels : tuple of PlannedChannel
     source : str
         The file name (or ``"<string>"``) used in error messages.
+    ppm : float or None
+        ``[defaults] ppm``: the receiver reference error of the capture the plan is for (ppm).
     """
 
     channels: tuple[PlannedChannel, ...]
     source: str = "<string>"
+    ppm: float | None = None
 
     def __len__(self) -> int:
         return len(self.channels)
@@ -380,6 +388,7 @@ class _Defaults:
     audio_low_hz: float | None = None
     audio_rate_hz: float | None = None
     squelch_db: float | None = None
+    ppm: float | None = None
 
 
 def _read_defaults(source: str, table: Any) -> _Defaults:
@@ -408,6 +417,11 @@ def _read_defaults(source: str, table: Any) -> _Defaults:
         result.audio_rate_hz = _audio_rate(where, table["audio_rate"])
     if "squelch_db" in table:
         result.squelch_db = _squelch(where, table["squelch_db"])
+    if "ppm" in table:
+        try:
+            result.ppm = check_ppm("ppm", table["ppm"])
+        except ParameterError as exc:
+            raise where.error(str(exc).removeprefix("ppm: "), "ppm") from None
     return result
 
 
@@ -605,7 +619,7 @@ def plan_from_dict(data: Any, source: str = "<dict>") -> ChannelPlan:
             )
         stems[stem] = (index, channel.name)
         channels.append(channel)
-    return ChannelPlan(tuple(channels), src)
+    return ChannelPlan(tuple(channels), src, defaults.ppm)
 
 
 def parse_plan(text: str | bytes, source: str = "<string>") -> ChannelPlan:
@@ -704,7 +718,7 @@ def _toml_float(value: float) -> str:
 def format_plan(plan_or_channels: ChannelPlan | Iterable[PlannedChannel]) -> str:
     """Write channels as plan TOML that :func:`parse_plan` reads back to the same channels.
 
-    Every setting is written out per channel (no ``[defaults]``); numbers are
+    Every setting is written out per channel (``[defaults]`` holds only ``ppm``); numbers are
     written in Hz with Python's shortest round-trip float text. The text is
     read back before it is returned, so the promise is checked, not assumed.
 
@@ -716,6 +730,9 @@ def format_plan(plan_or_channels: ChannelPlan | Iterable[PlannedChannel]) -> str
     """
     channels = plan_or_channels.channels if isinstance(plan_or_channels, ChannelPlan) else tuple(plan_or_channels)
     lines = ["# iqsift channel plan (TOML). Frequencies and bandwidths in Hz.", ""]
+    ppm = plan_or_channels.ppm if isinstance(plan_or_channels, ChannelPlan) else None
+    if ppm is not None:  # the only setting written as a default: it is the capture's, not a channel's
+        lines += ["[defaults]", f"ppm = {_toml_float(ppm)}  # receiver reference error, ppm (fast > 0)", ""]
     for index, ch in enumerate(channels, start=1):
         if not isinstance(ch, PlannedChannel):
             raise ParameterError(f"format_plan: item {index} is not a PlannedChannel, got {_echo(ch)}")

@@ -1,5 +1,6 @@
 """Capture files: readers (SigMF, raw interleaved, WAV/FLAC), writers, and statistics."""
 
+from .annotate import annotated_metadata, check_annotation_path, recording_edges
 from .atomic import OutputSet, check_output_path, signals_deferred
 from .audio import AudioWriter
 from .capture import DEFAULT_BLOCK_SIZE, Annotation, Capture, SampleRange, Segment
@@ -24,7 +25,10 @@ __all__ = [
     "Segment",
     "SigMFWriter",
     "StatsAccumulator",
+    "annotated_metadata",
     "capture_kind",
+    "check_annotation_path",
+    "recording_edges",
     "input_files",
     "check_output_path",
     "open_capture",

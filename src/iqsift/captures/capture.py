@@ -9,6 +9,7 @@ samples with a zero imaginary part and ``is_complex == False``.
 
 from __future__ import annotations
 
+import dataclasses
 import functools
 import math
 from dataclasses import dataclass, field
@@ -18,6 +19,7 @@ from typing import Any, Callable, Iterator, Protocol
 import numpy as np
 
 from ..errors import CaptureError, ParameterError
+from ..reference import check_ppm, reference_factor
 from ..units import TimeSpec, parse_time
 from .binary import BinarySource
 from .integrity import ChecksumPass
@@ -148,6 +150,10 @@ class Capture:
     verify : bool
         Check the data against the checksum its metadata records (SigMF ``core:sha512``) on every
         pass of :meth:`blocks` over the whole capture. A capture without one is never checked.
+    reference_ppm : float
+        The receiver reference error corrected for (ppm, :meth:`correct_reference`); 0 as opened.
+    nominal_sample_rate_hz : float
+        The sample rate the file states (before any correction).
     """
 
     def __init__(
@@ -180,6 +186,34 @@ class Capture:
         self.clip_high = float(clip_high)
         self.can_hold_nonfinite = bool(can_hold_nonfinite)
         self.verify = bool(verify)
+        self.reference_ppm = 0.0
+        self.nominal_sample_rate_hz = self.sample_rate_hz
+        self._nominal = (self.segments, self.annotations)
+
+    def correct_reference(self, ppm: float) -> "Capture":
+        """Read the capture as made by a receiver whose reference ran ``ppm`` parts per million fast.
+
+        The sample rate, the segments' centre frequencies and the annotations' frequency edges
+        become the true ones, ``k = 1 + ppm·1e-6`` times the file's (see :mod:`iqsift.reference`
+        for the derivation); everything computed from them afterwards (tuning, measured
+        frequencies, durations) is then true. Samples are untouched. A later call replaces the
+        earlier correction (it is always relative to the file's values); ``ppm = 0`` undoes it.
+
+        Returns the capture itself.
+        """
+        ppm = check_ppm("ppm", ppm)
+        k = reference_factor(ppm)
+        segments, annotations = self._nominal
+        self.reference_ppm = ppm
+        self.sample_rate_hz = self.nominal_sample_rate_hz * k
+        self.segments = tuple(
+            seg if seg.frequency_hz is None else dataclasses.replace(seg, frequency_hz=seg.frequency_hz * k)
+            for seg in segments)
+        self.annotations = tuple(
+            a if a.freq_lower_hz is None or a.freq_upper_hz is None else
+            dataclasses.replace(a, freq_lower_hz=a.freq_lower_hz * k, freq_upper_hz=a.freq_upper_hz * k)
+            for a in annotations)
+        return self
 
     # -- metadata -------------------------------------------------------
     @property

@@ -19,6 +19,7 @@ from .options import (
     NonfiniteOption,
     OptStr,
     PlotFormatOption,
+    PpmOption,
     QuietOption,
     RateOption,
     StrictOption,
@@ -56,6 +57,7 @@ def batch_command(
     rate: OptStr = RateOption,
     center: OptStr = CenterOption,
     strict: bool = StrictOption,
+    ppm: Optional[float] = PpmOption,
 ) -> None:
     """Extract every capture with its plan on a Dask cluster; exit status 1 if some captures failed."""
     from ..jobs.batch import batch_files, expand_captures, read_manifest
@@ -69,7 +71,7 @@ def batch_command(
                 items, plan_path, out_dir, workers=workers, scheduler=scheduler, scheduler_file=scheduler_file,
                 spectra=spectra, plot_format=plot_format, baseband=baseband, allow_nonfinite=allow_nonfinite,
                 force=force, resume=resume, progress=progress, format=format, rate=rate, center=center,
-                strict=strict,
+                strict=strict, ppm=ppm,
             )
     except IqsiftError as exc:
         exc.args = (_in_batch_words(str(exc), exc.parameters),)

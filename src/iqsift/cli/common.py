@@ -6,7 +6,7 @@ import sys
 import time
 from typing import Any, Callable
 
-__all__ = ["emit_json", "Progress", "ProgressBar"]
+__all__ = ["emit_json", "Progress", "ProgressBar", "reference_text"]
 
 
 def emit_json(obj: Any) -> None:
@@ -86,3 +86,16 @@ class ProgressBar:
     def __exit__(self, *exc: object) -> None:
         if self._bar is not None:
             self._bar.close()
+
+
+def reference_text(capture: dict[str, Any]) -> str | None:
+    """The receiver reference correction a result was made with, for people; None when there was none."""
+    ref = capture.get("frequency_reference") or {}
+    ppm = ref.get("correction_ppm") or 0.0
+    if not ppm:
+        return None
+    centre = capture.get("center_hz")
+    where = f", centre {centre:.1f} Hz" if centre is not None else ""
+    return (f"corrected for a receiver reference {ppm:+.3f} ppm off: true rate {capture['sample_rate_hz']:.3f} S/s"
+            f"{where} (file: {ref['nominal_sample_rate_hz']:g} S/s)")
+

@@ -10,7 +10,7 @@ import typer
 from ..channel import make_channel
 from ..errors import ParameterError
 from .app import app
-from .common import ProgressBar, emit_json
+from .common import ProgressBar, emit_json, reference_text
 from .options import (
     AgcOption,
     AudioRateOption,
@@ -29,6 +29,7 @@ from .options import (
     NoVerifyOption,
     OffsetOption,
     OptStr,
+    PpmOption,
     PlotFormatOption,
     QuietOption,
     RateOption,
@@ -65,6 +66,11 @@ def demod(
     center: OptStr = CenterOption,
     strict: bool = StrictOption,
     no_verify: bool = NoVerifyOption,
+    ppm: Optional[float] = PpmOption,
+    annotate: OptStr = typer.Option(
+        None, "--annotate", metavar="OUT.sigmf-meta",
+        help="Write SigMF metadata of the same recording with one annotation per activity segment of the "
+             "channel (the channel is then measured as by 'measure')."),
 ) -> None:
     """Demodulate one channel to audio (AM envelope/coherent, USB, LSB, DSB)."""
     if squelch is not None and not (0 <= squelch < 200):
@@ -78,7 +84,8 @@ def demod(
             capture_path, channel, output, baseband=baseband, report=report, spectra=spectra,
             plot_format=plot_format, engine=engine, agc=agc, start=start, duration=duration,
             allow_nonfinite=allow_nonfinite, force=force, progress=progress,
-            format=format, rate=rate, center=center, strict=strict, verify=not no_verify,
+            format=format, rate=rate, center=center, strict=strict, verify=not no_verify, ppm=ppm,
+            annotate=annotate,
         ).to_dict()
     if json_out:
         emit_json(result)
@@ -106,4 +113,9 @@ def format_demod(result: dict) -> str:
         lines.append(f"report     {result['outputs']['report']}")
     if result["outputs"].get("spectra"):
         lines.append(f"spectra    {result['outputs']['spectra']}/ ({len(result['outputs'].get('spectra_files', []))} files)")
+    if result["outputs"].get("annotations"):
+        lines.append(f"annotated  {result['outputs']['annotations']}")
+    ref = reference_text(result.get("capture") or {})
+    if ref:
+        lines.append(f"reference  {ref}")
     return "\n".join(lines)

@@ -2,10 +2,12 @@
 
 from __future__ import annotations
 
+from typing import Optional
+
 import typer
 
 from .app import app
-from .common import ProgressBar, emit_json
+from .common import ProgressBar, emit_json, reference_text
 from .options import (
     CaptureArgument,
     CenterOption,
@@ -16,6 +18,7 @@ from .options import (
     NonfiniteOption,
     NoVerifyOption,
     OptStr,
+    PpmOption,
     PlotFormatOption,
     QuietOption,
     RateOption,
@@ -43,6 +46,11 @@ def extract_command(
     center: OptStr = CenterOption,
     strict: bool = StrictOption,
     no_verify: bool = NoVerifyOption,
+    ppm: Optional[float] = PpmOption,
+    annotate: OptStr = typer.Option(
+        None, "--annotate", metavar="OUT.sigmf-meta",
+        help="Write SigMF metadata of the same recording with one annotation per activity segment of every "
+             "channel."),
 ) -> None:
     """Extract every channel of a plan in one pass: <name>.wav per channel and report.json."""
     from ..jobs import extract_file  # here, not at the top: `iqsift --help` stays fast
@@ -51,7 +59,8 @@ def extract_command(
         result = extract_file(
             capture_path, plan_path, out_dir, spectra=spectra, plot_format=plot_format, baseband=baseband,
             start=start, duration=duration, allow_nonfinite=allow_nonfinite, force=force, progress=progress,
-            format=format, rate=rate, center=center, strict=strict, verify=not no_verify,
+            format=format, rate=rate, center=center, strict=strict, verify=not no_verify, ppm=ppm,
+            annotate=annotate,
         ).to_dict()
     if json_out:
         emit_json(result)
@@ -78,4 +87,9 @@ def format_extract(result: dict) -> str:
             f"{'-' if err is None else f'{err:+.2f}':>15} {len(ch.get('activity') or []):>7}  {ch['outputs']['audio']}"
         )
     lines.append(f"report: {result['outputs']['report']}")
+    if result["outputs"].get("annotations"):
+        lines.append(f"annotated: {result['outputs']['annotations']}")
+    ref = reference_text(result["capture"])
+    if ref:
+        lines.append(f"reference: {ref}")
     return "\n".join(lines)

@@ -2,13 +2,13 @@
 
 from __future__ import annotations
 
-from typing import Any
+from typing import Any, Optional
 
 import typer
 
 from ..units import format_hz
 from .app import app
-from .common import ProgressBar, emit_json
+from .common import ProgressBar, emit_json, reference_text
 from .options import (
     CaptureArgument,
     CenterOption,
@@ -16,6 +16,7 @@ from .options import (
     JsonOption,
     NoVerifyOption,
     OptStr,
+    PpmOption,
     QuietOption,
     RateOption,
     StrictOption,
@@ -31,6 +32,7 @@ def info(
     center: OptStr = CenterOption,
     strict: bool = StrictOption,
     no_verify: bool = NoVerifyOption,
+    ppm: Optional[float] = PpmOption,
     quiet: bool = QuietOption,
 ) -> None:
     """Describe a capture and measure its levels, DC offset, clipping and IQ imbalance."""
@@ -38,7 +40,7 @@ def info(
 
     with ProgressBar("measuring", quiet) as progress:
         result = info_file(capture_path, format=format, rate=rate, center=center, strict=strict,
-                           progress=progress, verify=not no_verify).to_dict()
+                           progress=progress, verify=not no_verify, ppm=ppm).to_dict()
     if json_out:
         emit_json(result)
     else:
@@ -98,4 +100,7 @@ def format_info(result: dict[str, Any]) -> str:
             f"IQ imbalance  gain {stats['gain_imbalance_db']:+.3f} dB, phase {stats['phase_imbalance_deg']:+.3f} deg, "
             f"image rejection {'>90' if irr is None or irr > 90 else f'{irr:.1f}'} dB (assumes a noise-like signal)"
         )
+    ref = reference_text(result)
+    if ref:
+        lines.append(f"reference     {ref}")
     return "\n".join(lines)

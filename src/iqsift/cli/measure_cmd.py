@@ -2,14 +2,14 @@
 
 from __future__ import annotations
 
-from typing import Any
+from typing import Any, Optional
 
 import typer
 
 from ..channel import make_channel
 from ..units import parse_positive_hz
 from .app import app
-from .common import ProgressBar, emit_json
+from .common import ProgressBar, emit_json, reference_text
 from .options import (
     AudioRateOption,
     BandwidthOption,
@@ -25,6 +25,7 @@ from .options import (
     NoVerifyOption,
     OffsetOption,
     OptStr,
+    PpmOption,
     QuietOption,
     RateOption,
     StartOption,
@@ -55,6 +56,7 @@ def measure_command(
     center: OptStr = CenterOption,
     strict: bool = StrictOption,
     no_verify: bool = NoVerifyOption,
+    ppm: Optional[float] = PpmOption,
 ) -> None:
     """Measure carrier frequency error and level, modulation depth, SNR/SINAD/THD, bandwidths and activity."""
     tone_hz = None if tone is None else parse_positive_hz(tone, "--tone")
@@ -66,7 +68,7 @@ def measure_command(
         result = measure_file(
             capture_path, channel, tone_hz=tone_hz, weighting=weighting, x_db=x_db, threshold_db=threshold,
             start=start, duration=duration, allow_nonfinite=allow_nonfinite, progress=progress,
-            format=format, rate=rate, center=center, strict=strict, verify=not no_verify,
+            format=format, rate=rate, center=center, strict=strict, verify=not no_verify, ppm=ppm,
         ).to_dict()
     if json_out:
         emit_json(result)
@@ -108,4 +110,7 @@ def format_measure(r: dict[str, Any]) -> str:
         lines.append(f"  {seg['start_s']:9.3f} s - {seg['end_s']:9.3f} s  {seg['level_dbfs']:.1f} dBFS")
     if len(acts) > 20:
         lines.append(f"  ... {len(acts) - 20} more (see --json)")
+    ref = reference_text(r.get("capture") or {})
+    if ref:
+        lines.append(f"reference      {ref}")
     return "\n".join(lines)

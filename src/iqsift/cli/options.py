@@ -32,6 +32,11 @@ NoVerifyOption = typer.Option(
     help="Do not check the data against the SHA-512 its SigMF metadata records (core:sha512). The check runs "
          "while the whole capture streams through; it is skipped anyway when --start/--duration select a part.",
 )
+PpmOption = typer.Option(
+    None, "--ppm", metavar="P",
+    help="Receiver reference error in ppm (positive: runs fast, transmitters appear low). Corrects the "
+         "capture's sample rate and centre, so every frequency tuned, measured or reported is true.",
+)
 
 # -- output and terminal ------------------------------------------------------------------------
 JsonOption = typer.Option(False, "--json", help="Print a machine-readable JSON result on stdout.")
@@ -78,6 +83,9 @@ FLAGS: dict[str, str] = {
     "out_dir": "--out-dir",
     "ripple_db": "--ripple",
     "atten_db": "--atten",
+    "ppm": "--ppm",
+    "reference_carrier": "--reference-carrier",
+    "annotate": "--annotate",
 }
 """Python parameter name -> the flag that sets it."""
 

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import math
-from typing import Any
+from typing import Any, Optional
 
 import typer
 
@@ -21,13 +21,14 @@ from .options import (
     NonfiniteOption,
     NoVerifyOption,
     OptStr,
+    PpmOption,
     QuietOption,
     RateOption,
     StartOption,
     StrictOption,
 )
 
-__all__ = ["survey", "format_survey", "parse_threshold", "SURVEY_THRESHOLD_DB"]
+__all__ = ["survey", "format_survey", "format_reference", "parse_threshold", "SURVEY_THRESHOLD_DB"]
 
 SURVEY_THRESHOLD_DB = 10.0
 """The default of ``--threshold`` as the help shows it: :data:`iqsift.survey.DEFAULT_THRESHOLD_DB`, written out
@@ -72,6 +73,14 @@ def survey(
     center: OptStr = CenterOption,
     strict: bool = StrictOption,
     no_verify: bool = NoVerifyOption,
+    ppm: Optional[float] = PpmOption,
+    reference_carrier: OptStr = typer.Option(
+        None, "--reference-carrier", metavar="FREQ",
+        help="True frequency of one transmitter in the capture: estimate the receiver's reference error from it "
+             "(without it, --raster estimates it from the carriers that agree). Applied unless --ppm is given."),
+    annotate: OptStr = typer.Option(
+        None, "--annotate", metavar="OUT.sigmf-meta",
+        help="Write SigMF metadata of the same recording with one annotation per emission found."),
 ) -> None:
     """Find the emissions in a capture: frequency, level, bandwidth, class; optionally write a channel plan."""
     from ..jobs import survey_file  # here, not at the top: `iqsift --help` stays fast
@@ -83,7 +92,8 @@ def survey(
         result = survey_file(
             capture_path, threshold_db=threshold_db, raster=raster, plan_out=plan_out, resolution_hz=resolution_hz,
             start=start, duration=duration, allow_nonfinite=allow_nonfinite, force=force, progress=progress,
-            format=format, rate=rate, center=center, strict=strict, verify=not no_verify,
+            format=format, rate=rate, center=center, strict=strict, verify=not no_verify, ppm=ppm,
+            reference_carrier=reference_carrier, annotate=annotate,
         )
     report = result.to_dict()
     if json_out:
@@ -139,6 +149,9 @@ def format_survey(report: dict[str, Any]) -> str:
             f"DC offset  {dc['level_dbfs']:.1f} dBFS (I {dc['i']:+.5f}, Q {dc['q']:+.5f}); "
             f"0 Hz bin {dc['spike_above_floor_db']:.1f} dB above the floor ({state})"
         )
+    ref = report.get("frequency_reference")
+    if ref is not None:
+        lines.append(f"reference  {format_reference(ref)}")
     emissions = report["emissions"]
     if not emissions:
         lines.append(f"emissions  none at {report['threshold_db']:g} dB above the floor")
@@ -162,7 +175,19 @@ def format_survey(report: dict[str, Any]) -> str:
         )
     if report.get("plan"):
         lines.append(f"plan       {report['plan']}")
+    if report.get("annotations"):
+        lines.append(f"annotated  {report['annotations']}")
     return "\n".join(lines)
+
+
+def format_reference(ref: dict[str, Any]) -> str:
+    """One line on the receiver's reference error estimated by a survey."""
+    if ref["error_ppm"] is None:
+        return f"receiver error not estimated ({ref['method']}): {ref.get('reason', '')}"
+    used = len(ref["carriers_used"])
+    state = "applied" if ref["applied"] else f"not applied: {ref.get('not_applied', '')}".replace("(ppm)", "(--ppm)")
+    return (f"receiver error {ref['error_ppm']:+.3f} ppm (u = {ref['uncertainty_ppm']:.3f} ppm) from {used} of "
+            f"{ref['carriers_considered']} carriers, {ref['method']}; {state}")
 
 
 def _expected(value: float) -> str:

@@ -681,6 +681,7 @@ def batch_files(
     rate: str | float | None = None,
     center: str | float | None = None,
     strict: bool = False,
+    ppm: float | None = None,
 ) -> BatchResult:
     """Extract every capture with its plan, each into ``out_dir/<stem>/``, on Dask's distributed scheduler.
 
@@ -709,7 +710,7 @@ def batch_files(
     memory_limit : str or float or None
         Memory limit of each local worker process (Dask's ``memory_limit``: "auto" shares the
         machine's memory among them, "2GiB", bytes, or None for none).
-    spectra, plot_format, baseband, allow_nonfinite, format, rate, center, strict
+    spectra, plot_format, baseband, allow_nonfinite, format, rate, center, strict, ppm
         As for :func:`extract_file`, for every capture.
     force : bool
         Replace existing capture folders, ``batch.jsonl`` and ``activity.csv``.
@@ -739,6 +740,8 @@ def batch_files(
     options = {"spectra": spectra, "plot_format": plot_format, "baseband": baseband,
                "allow_nonfinite": allow_nonfinite, "format": format, "rate": rate, "center": center,
                "strict": strict}
+    if ppm is not None:  # only when given: earlier batch logs without it still resume
+        options["ppm"] = ppm
     tasks = _tasks(captures, plan, folder, options, force)
     earlier = _earlier_lines(folder) if resume else {}
     outcomes: dict[str, CaptureOutcome] = {}

@@ -18,12 +18,14 @@ from .. import __version__
 from ..captures import Capture, OutputSet, SampleRange, SigMFWriter, open_capture
 from ..errors import ParameterError
 from ..jsonable import to_jsonable
+from ..reference import MAX_PPM
 
 __all__ = [
     "CaptureArg",
     "CaptureSummary",
     "Progress",
     "SelectionSummary",
+    "audio_file_rate",
     "baseband_writer",
     "check_plot_format",
     "counted",
@@ -55,11 +57,15 @@ def opened(
     center: str | float | None = None,
     strict: bool = False,
     verify: bool = True,
+    ppm: float | None = None,
 ) -> Iterator[Capture]:
     """The capture, opened here (and closed on exit) when given as a path; as it is when already open.
 
     With ``verify`` false the capture's recorded checksum is not checked (see
     :attr:`~iqsift.captures.Capture.verify`); an already opened capture gets its own setting back on exit.
+    With ``ppm`` the capture is read as made by a receiver whose reference ran ``ppm`` parts per million
+    fast (:meth:`~iqsift.captures.Capture.correct_reference`): its rate and centre are the true ones;
+    an already opened capture gets its own correction back on exit.
 
     Raises
     ------
@@ -71,16 +77,37 @@ def opened(
         given = [name for name, value in (("format", format), ("rate", rate), ("center", center)) if value is not None]
         if given:
             raise ParameterError(f"{', '.join(given)}: only for a capture given by path; {capture.path} is already open")
-        own_setting = capture.verify
+        own_setting, own_ppm = capture.verify, capture.reference_ppm
         capture.verify = own_setting and verify
         try:
+            if ppm is not None:
+                capture.correct_reference(ppm)
             yield capture
         finally:
             capture.verify = own_setting
+            if capture.reference_ppm != own_ppm:  # a job may correct it further (survey's estimate)
+                capture.correct_reference(own_ppm)
         return
     with open_capture(capture, format=format, rate=rate, center=center, strict=strict,
                       verify=verify) as opened_capture:
+        if ppm is not None:
+            opened_capture.correct_reference(ppm)
         yield opened_capture
+
+
+def audio_file_rate(rate_hz: float) -> float:
+    """The sample rate an audio file of audio made at ``rate_hz`` is labelled with (samples/s).
+
+    Audio files need a whole rate. A capture corrected for its receiver's reference error
+    (:mod:`iqsift.reference`) has a true rate that is not a round number (240 001.92 samples/s for
+    240 kS/s at +8 ppm), and the audio resampler's small-integer ratio then gives, say, 16 000.128
+    samples/s. Such a rate within :data:`~iqsift.reference.MAX_PPM` of a whole number is written as
+    that number: the file plays on the receiver's own clock, off by the reference error (8 ppm: 0.03 s
+    in an hour), while every time and frequency in the report is true. Other rates are returned as they
+    are (and refused by the writer).
+    """
+    whole = round(rate_hz)
+    return float(whole) if whole > 0 and abs(rate_hz / whole - 1.0) <= MAX_PPM * 1e-6 else rate_hz
 
 
 def check_plot_format(plot_format: str) -> str:
@@ -125,6 +152,11 @@ class CaptureSummary:
         Length in seconds.
     segments, annotations : tuple of dict
         SigMF capture segments and annotations.
+    reference_ppm : float
+        Receiver reference error corrected for (ppm; 0: none). ``sample_rate_hz``, ``center_hz`` and the
+        segments' and annotations' frequencies are the corrected (true) ones.
+    nominal_sample_rate_hz : float
+        The sample rate the file states.
     """
 
     path: str
@@ -137,6 +169,8 @@ class CaptureSummary:
     duration_s: float
     segments: tuple[Mapping[str, Any], ...]
     annotations: tuple[Mapping[str, Any], ...]
+    reference_ppm: float = 0.0
+    nominal_sample_rate_hz: float | None = None
 
     @classmethod
     def of(cls, capture: Capture) -> "CaptureSummary":
@@ -152,6 +186,8 @@ class CaptureSummary:
             duration_s=capture.duration_s,
             segments=tuple(s.as_dict() for s in capture.segments),
             annotations=tuple(a.as_dict() for a in capture.annotations),
+            reference_ppm=capture.reference_ppm,
+            nominal_sample_rate_hz=capture.nominal_sample_rate_hz,
         )
 
     def to_dict(self) -> dict[str, Any]:
@@ -167,6 +203,11 @@ class CaptureSummary:
             "duration_s": self.duration_s,
             "segments": [dict(s) for s in self.segments],
             "annotations": [dict(a) for a in self.annotations],
+            "frequency_reference": {
+                "correction_ppm": self.reference_ppm,
+                "nominal_sample_rate_hz": (self.sample_rate_hz if self.nominal_sample_rate_hz is None
+                                           else self.nominal_sample_rate_hz),
+            },
         }
 
 
@@ -213,7 +254,7 @@ def baseband_writer(
         description=f"iqsift channel baseband of {capture.path.name}",
         extra={
             "iqsift:source": {"path": str(capture.path), "sample_start": selection.start,
-                              "sample_count": selection.count},
+                              "sample_count": selection.count, "reference_ppm": capture.reference_ppm},
             "iqsift:channel": to_jsonable(channel),
             "iqsift:design": to_jsonable(design),
         },

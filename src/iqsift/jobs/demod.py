@@ -8,14 +8,17 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-from ..captures import AudioWriter, OutputSet
+from ..captures import AudioWriter, OutputSet, annotated_metadata, check_annotation_path
 from ..channel import Channel
+from ..jsonable import dumps
 from ..receiver import Receiver, ReceiverReport
+from .annotations import activity_annotations
 from .common import (
     CaptureArg,
     CaptureSummary,
     Progress,
     SelectionSummary,
+    audio_file_rate,
     baseband_writer,
     check_plot_format,
     counted,
@@ -36,12 +39,15 @@ class DemodOutputs:
     report: str | None = None
     spectra: str | None = None
     spectra_files: tuple[str, ...] | None = None
+    annotations: str | None = None
 
     def to_dict(self) -> dict[str, Any]:
         out: dict[str, Any] = {"audio": self.audio, "baseband": self.baseband, "report": self.report,
                                "spectra": self.spectra}
         if self.spectra_files is not None:
             out["spectra_files"] = list(self.spectra_files)
+        if self.annotations is not None:
+            out["annotations"] = self.annotations
         return out
 
 
@@ -105,6 +111,8 @@ def demod_file(
     center: str | float | None = None,
     strict: bool = False,
     verify: bool = True,
+    ppm: float | None = None,
+    annotate: str | os.PathLike[str] | None = None,
 ) -> DemodResult:
     """Demodulate one channel of a capture to a WAV/FLAC file.
 
@@ -146,13 +154,22 @@ def demod_file(
         Check a SigMF capture's data against its ``core:sha512`` while reading it (when the whole
         capture is read; a part selected by ``start``/``duration`` is not checked). On a mismatch
         :class:`~iqsift.captures.ChecksumError` is raised and nothing is written.
+    ppm : float, optional
+        The receiver's reference error (ppm, positive: fast; see :mod:`iqsift.reference`): the capture's
+        rate and centre are corrected, so the channel is tuned to, and reports, true frequencies.
+    annotate : path, optional
+        Write SigMF metadata of the same recording (``.sigmf-meta``, in the data file's folder) with one
+        annotation per activity segment of the channel. The channel is then measured as by
+        :func:`~iqsift.jobs.measure_file` (activity needs it), and the report carries those sections.
     """
     check_plot_format(plot_format)
     started = time.perf_counter()
     with opened(capture, format=format, rate=rate, center=center, strict=strict,
-                verify=verify) as cap:
+                verify=verify, ppm=ppm) as cap:
         selection = cap.select(start, duration)
         receiver = Receiver.for_capture(cap, channel, selection, engine=engine, agc=agc, spectra=bool(spectra))
+        if annotate:
+            receiver.analyze(time_offset_s=selection.start / cap.sample_rate_hz)  # activity in capture time
         spectra_dir = Path(spectra) if spectra else None
         keeper = None
         if spectra_dir is not None:
@@ -161,8 +178,9 @@ def demod_file(
             check_stage_plot_folder(spectra_dir, plot_format, force)  # before any work
             keeper = AudioKeeper.attach(receiver)
         with OutputSet(force=force, protect=cap.files) as outputs:
-            audio_writer = AudioWriter(output, receiver.audio_rate_hz, outputs=outputs)
+            audio_writer = AudioWriter(output, audio_file_rate(receiver.audio_rate_hz), outputs=outputs)
             report_tmp = outputs.reserve(report) if report else None
+            annotate_tmp = outputs.reserve(check_annotation_path(cap, annotate)) if annotate else None
             bb_writer = None
             if baseband:
                 centre = receiver.center_hz
@@ -179,6 +197,10 @@ def demod_file(
             if bb_writer is not None:
                 bb_writer.close()
             rx_report = receiver.report()
+            if annotate_tmp is not None:
+                found = rx_report.to_dict()
+                notes = activity_annotations(cap, found["channel"], found.get("activity") or [])
+                annotate_tmp.write_text(dumps(annotated_metadata(cap, str(annotate), notes)), encoding="utf-8")
             elapsed_s = time.perf_counter() - started
             spectra_files = None
             if spectra_dir is not None:
@@ -194,12 +216,11 @@ def demod_file(
                 outputs=DemodOutputs(
                     audio=str(output), baseband=None if baseband is None else str(baseband),
                     report=None if report is None else str(report),
-                    spectra=None if spectra_dir is None else str(spectra_dir), spectra_files=spectra_files),
+                    spectra=None if spectra_dir is None else str(spectra_dir), spectra_files=spectra_files,
+                    annotations=None if annotate is None else str(annotate)),
                 audio_clipped_samples=audio_writer.clipped_samples,
                 elapsed_s=elapsed_s,
             )
             if report_tmp is not None:
-                from ..jsonable import dumps
-
                 report_tmp.write_text(dumps(result.to_dict()))
     return result

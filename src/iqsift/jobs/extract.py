@@ -8,17 +8,27 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Mapping
 
-from ..captures import AudioWriter, Capture, OutputSet, SampleRange, SigMFWriter
+from ..captures import (
+    AudioWriter,
+    Capture,
+    OutputSet,
+    SampleRange,
+    SigMFWriter,
+    annotated_metadata,
+    check_annotation_path,
+)
 from ..errors import ParameterError
 from ..extractor import Extractor
 from ..jsonable import dumps
 from ..plan import ChannelPlan, load_plan
 from ..receiver import ReceiverReport
+from .annotations import activity_annotations
 from .common import (
     CaptureArg,
     CaptureSummary,
     Progress,
     SelectionSummary,
+    audio_file_rate,
     baseband_writer,
     check_plot_format,
     counted,
@@ -69,6 +79,8 @@ class ExtractResult:
         The output folder; ``report.json`` in it holds :meth:`to_dict`.
     elapsed_s : float
         Wall-clock time of the whole job up to the report, plots included (s).
+    annotations : str or None
+        The SigMF metadata written with ``annotate`` (one annotation per activity segment).
     """
 
     capture: CaptureSummary
@@ -79,6 +91,7 @@ class ExtractResult:
     channels: tuple[ChannelResult, ...]
     folder: str
     elapsed_s: float
+    annotations: str | None = None
 
     schema = "extract-v1"
 
@@ -97,7 +110,8 @@ class ExtractResult:
             "processing_s": self.processing_s,
             "input_throughput_msps": count / self.processing_s / 1e6 if self.processing_s > 0 else None,
             "channels": [c.to_dict() for c in self.channels],
-            "outputs": {"folder": self.folder, "report": self.report_path},
+            "outputs": {"folder": self.folder, "report": self.report_path,
+                        **({} if self.annotations is None else {"annotations": self.annotations})},
             "elapsed_s": self.elapsed_s,
         })
 
@@ -120,6 +134,8 @@ def extract_file(
     center: str | float | None = None,
     strict: bool = False,
     verify: bool = True,
+    ppm: float | None = None,
+    annotate: str | os.PathLike[str] | None = None,
 ) -> ExtractResult:
     """Extract every channel of a plan in one pass: ``<name>.wav`` per channel and ``report.json``.
 
@@ -141,8 +157,11 @@ def extract_file(
         Plot file format.
     baseband : bool
         Also write each channel's baseband as SigMF (``<name>.sigmf-meta``/``-data``).
-    start, duration, allow_nonfinite, force, progress, format, rate, center, strict, verify
-        As for :func:`demod_file`.
+    start, duration, allow_nonfinite, force, progress, format, rate, center, strict, verify, ppm
+        As for :func:`demod_file`; without ``ppm`` the plan's ``[defaults] ppm`` (if any) applies.
+    annotate : path, optional
+        Write SigMF metadata of the same recording (``.sigmf-meta``, in the data file's folder) with one
+        annotation per activity segment of every channel (:func:`~iqsift.jobs.annotations.activity_annotations`).
     """
     check_plot_format(plot_format)
     started = time.perf_counter()
@@ -152,7 +171,7 @@ def extract_file(
     if folder.exists() and not folder.is_dir():
         raise ParameterError(f"out_dir {folder}: exists and is not a folder", parameters=("out_dir",))
     with opened(capture, format=format, rate=rate, center=center, strict=strict,
-                verify=verify) as cap:
+                verify=verify, ppm=ppm if ppm is not None else plan_obj.ppm) as cap:
         selection = cap.select(start, duration)
         extractor = Extractor.from_plan(cap, plan_obj, selection=selection, spectra=spectra)
         parent = folder.parent if str(folder.parent) else Path(".")
@@ -166,11 +185,13 @@ def extract_file(
                     check_stage_plot_folder(folder / "spectra" / _stem(rx), plot_format, force)
         protect = (*cap.files, *(() if plan_file is None else (plan_file,)))
         with OutputSet(force=force, protect=protect) as outputs:
+            annotate_tmp = outputs.reserve(check_annotation_path(cap, annotate)) if annotate else None
             outputs.make_folder(folder)  # removed again, with spectra/<name>/, unless the job finishes
             return _run(extractor, cap, selection, folder, outputs, started,
                         plan=str(plan_file) if plan_file is not None else plan_obj.source,
                         baseband=baseband, spectra=spectra, plot_format=plot_format,
-                        nonfinite=nonfinite_policy(allow_nonfinite), progress=progress)
+                        nonfinite=nonfinite_policy(allow_nonfinite), progress=progress,
+                        annotate=None if annotate_tmp is None else (annotate_tmp, str(annotate)))
 
 
 def _stem(rx: Any) -> str:
@@ -180,14 +201,14 @@ def _stem(rx: Any) -> str:
 
 def _run(extractor: Extractor, cap: Capture, selection: SampleRange, folder: Path, outputs: OutputSet,
          started: float, *, plan: str, baseband: bool, spectra: bool, plot_format: str, nonfinite: str,
-         progress: Progress | None) -> ExtractResult:
+         progress: Progress | None, annotate: tuple[Path, str] | None = None) -> ExtractResult:
     writers: list[AudioWriter] = []
     bb_writers: list[SigMFWriter] = []
     files: list[dict[str, Any]] = []
     centre = extractor.center_hz
     for rx in extractor.receivers:
         audio_path = folder / f"{_stem(rx)}.wav"
-        writers.append(AudioWriter(audio_path, rx.audio_rate_hz, outputs=outputs))
+        writers.append(AudioWriter(audio_path, audio_file_rate(rx.audio_rate_hz), outputs=outputs))
         entry: dict[str, Any] = {"audio": str(audio_path)}
         if baseband:
             bb_path = folder / f"{_stem(rx)}.sigmf-meta"
@@ -226,6 +247,10 @@ def _run(extractor: Extractor, cap: Capture, selection: SampleRange, folder: Pat
                 rx, folder / "spectra" / _stem(rx), capture_name=cap.path.name, fmt=plot_format, outputs=outputs,
                 audio=keepers[i].audio())]
         channels.append(ChannelResult(rx.report(), entry))
+    if annotate is not None:
+        reports = [ch.report.to_dict() for ch in channels]
+        notes = [a for r in reports for a in activity_annotations(cap, r["channel"], r.get("activity") or [])]
+        annotate[0].write_text(dumps(annotated_metadata(cap, annotate[1], notes)), encoding="utf-8")
     result = ExtractResult(
         capture=CaptureSummary.of(cap),
         plan=plan,
@@ -235,6 +260,7 @@ def _run(extractor: Extractor, cap: Capture, selection: SampleRange, folder: Pat
         channels=tuple(channels),
         folder=str(folder),
         elapsed_s=time.perf_counter() - started,
+        annotations=None if annotate is None else annotate[1],
     )
     report_tmp.write_text(dumps(result.to_dict()))
     return result

@@ -34,6 +34,7 @@ def info_file(
     strict: bool = False,
     progress: Progress | None = None,
     verify: bool = True,
+    ppm: float | None = None,
 ) -> InfoResult:
     """Describe a capture and measure it in one pass (NaN/Inf samples are counted, not refused).
 
@@ -48,8 +49,10 @@ def info_file(
     verify : bool
         Check a SigMF capture's data against its ``core:sha512`` while reading it; a mismatch
         raises :class:`~iqsift.captures.ChecksumError`.
+    ppm : float, optional
+        Receiver reference error (ppm) to correct for (see :func:`demod_file`).
     """
-    with opened(capture, format=format, rate=rate, center=center, strict=strict, verify=verify) as cap:
+    with opened(capture, format=format, rate=rate, center=center, strict=strict, verify=verify, ppm=ppm) as cap:
         acc = StatsAccumulator(cap.is_complex, cap.clip_high)
         for block in counted(cap.blocks(nonfinite="keep"), cap.samples, progress):
             acc.update(block)

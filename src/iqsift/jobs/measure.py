@@ -65,6 +65,7 @@ def measure_file(
     center: str | float | None = None,
     strict: bool = False,
     verify: bool = True,
+    ppm: float | None = None,
 ) -> MeasureResult:
     """Measure one channel of a capture; writes nothing.
 
@@ -82,11 +83,11 @@ def measure_file(
         x of the x-dB bandwidth (ITU-R SM.328), dB.
     threshold_db : float
         Activity threshold above the channel's noise floor, dB.
-    start, duration, allow_nonfinite, progress, format, rate, center, strict, verify
+    start, duration, allow_nonfinite, progress, format, rate, center, strict, verify, ppm
         As for :func:`demod_file`.
     """
     with opened(capture, format=format, rate=rate, center=center, strict=strict,
-                verify=verify) as cap:
+                verify=verify, ppm=ppm) as cap:
         selection = cap.select(start, duration)
         receiver = Receiver.for_capture(cap, channel, selection, agc=False).analyze(
             tone_hz=tone_hz, weighting=weighting, x_db=x_db, activity={"threshold_db": threshold_db},
@@ -149,6 +150,7 @@ def measure_channel(
     start: Any = None,
     duration: Any = None,
     nonfinite: str = "error",
+    ppm: float | None = None,
 ) -> ChannelMeasurement:
     """Measure one channel of a capture in one streaming pass (the library form of ``iqsift measure``).
 
@@ -168,6 +170,8 @@ def measure_channel(
         Activity threshold above the noise floor (dB).
     start, duration : seconds or str, optional
         The window to analyse (see :meth:`Capture.select`).
+    ppm : float, optional
+        The receiver's reference error (ppm, positive: fast), corrected for (see :func:`demod_file`).
 
     Raises
     ------
@@ -176,7 +180,7 @@ def measure_channel(
     """
     result = measure_file(capture, channel, tone_hz=tone_hz, weighting=weighting, x_db=x_db,
                           threshold_db=threshold_db, start=start, duration=duration,
-                          allow_nonfinite=nonfinite == "zero")
+                          allow_nonfinite=nonfinite == "zero", ppm=ppm)
     report = result.receiver
     analysis = report.analysis
     assert analysis is not None  # measure_file analyses

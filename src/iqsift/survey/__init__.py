@@ -179,6 +179,12 @@ Rasters (``raster``)
     ``raster_rule``. A raster needs absolute frequencies, so the capture's
     centre must be known (:mod:`~iqsift.survey.snapping`).
 
+Receiver reference error
+    With a raster or a known reference carrier, the carriers found also estimate the
+    receiver's reference error (:mod:`~iqsift.survey.reference`); unless the error was given
+    (``ppm``), the spectra are then read on the corrected frequency scale
+    (:meth:`Surveyor.result`), so frequencies, raster snapping and the plan are true ones.
+
 Known limits
     Emissions whose spectra touch without a carrier line in both (two adjacent
     SSB signals, or an SSB signal next to an AM one) are reported as one. A
@@ -198,7 +204,8 @@ Modules
     resolution rule, :func:`survey_capture`), :mod:`~iqsift.survey.analysis` (floor,
     detection, grouping, measurement), :mod:`~iqsift.survey.results`
     (:class:`DetectedEmission`, :class:`SurveyResult`), :mod:`~iqsift.survey.snapping`
-    (carriers on a raster), :mod:`~iqsift.survey.proposal` (the proposed channel plan).
+    (carriers on a raster), :mod:`~iqsift.survey.proposal` (the proposed channel plan),
+    :mod:`~iqsift.survey.reference` (the receiver's reference error from the carriers found).
 """
 
 from __future__ import annotations
@@ -206,6 +213,7 @@ from __future__ import annotations
 from .analysis import DC_GUARD_BINS, LOWEST_MODULATING_HZ
 from .formulas import floor_median_bias, grandke_offset, hann_response, welch_dof
 from .proposal import survey_plan_text, survey_to_plan
+from .reference import FrequencyReference, estimate_from_carrier, estimate_from_raster
 from .results import DetectedEmission, SurveyResult
 from .surveyor import (
     DEFAULT_EDGE_GUARD,
@@ -217,6 +225,7 @@ from .surveyor import (
     TARGET_BIN_HZ,
     Surveyor,
     choose_resolution,
+    feed_capture,
     survey_capture,
 )
 
@@ -239,6 +248,10 @@ __all__ = [
     "grandke_offset",
     "hann_response",
     "survey_capture",
+    "feed_capture",
+    "FrequencyReference",
+    "estimate_from_raster",
+    "estimate_from_carrier",
     "survey_to_plan",
     "survey_plan_text",
 ]

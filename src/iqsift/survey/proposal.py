@@ -29,6 +29,7 @@ def survey_to_plan(
     audio_rate_hz: float = 16000.0,
     squelch_db: float | None = None,
     source: str = "<survey>",
+    ppm: float | None = None,
 ) -> ChannelPlan:
     """A channel plan with one channel per emission, as :func:`iqsift.plan.parse_plan` would read it.
 
@@ -38,7 +39,8 @@ def survey_to_plan(
     the measured carrier), with the emission designator and the proposed detector
     (A3E → envelope, DSB-SC → dsb, single sideband → usb/lsb). Frequencies are
     absolute (``freq``, or ``channel_name`` for aeronautical names) when the capture
-    has a centre frequency, else ``offset``.
+    has a centre frequency, else ``offset``. ``ppm``, the receiver reference error the survey's
+    frequencies were corrected for, goes into ``[defaults]`` so that ``extract`` applies it too.
 
     Raises
     ------
@@ -67,7 +69,10 @@ def survey_to_plan(
         if squelch_db is not None:
             entry["squelch_db"] = float(squelch_db)
         entries.append(entry)
-    return plan_from_dict({"channel": entries}, source)
+    data: dict[str, Any] = {"channel": entries}
+    if ppm is not None:
+        data["defaults"] = {"ppm": float(ppm)}
+    return plan_from_dict(data, source)
 
 
 def survey_plan_text(result: SurveyResult, *, capture_name: str = "", **kwargs: Any) -> str:

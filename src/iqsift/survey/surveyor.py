@@ -8,14 +8,16 @@ longer segments; :meth:`Surveyor.result` hands them to
 
 from __future__ import annotations
 
+import copy
+import dataclasses
 import math
-from dataclasses import replace
 from typing import Any, Callable, Iterable, Iterator
 
 import numpy as np
 
 from ..errors import ParameterError
 from ..rasters import Raster, parse_raster
+from ..reference import check_ppm, reference_factor
 from ..spectra import Spectrum, WelchAccumulator
 from .analysis import analyse_spectra
 from .formulas import welch_dof
@@ -32,6 +34,7 @@ __all__ = [
     "Surveyor",
     "choose_resolution",
     "survey_capture",
+    "feed_capture",
 ]
 
 #: Default detection threshold, dB above the local noise floor.
@@ -267,8 +270,20 @@ class Surveyor:
 
     __call__ = feed
 
-    def result(self) -> SurveyResult:
-        """Analyse the averaged spectra: noise floor, emissions, DC offset."""
+    def result(self, *, reference_ppm: float = 0.0, snap: bool = True) -> SurveyResult:
+        """Analyse the averaged spectra: noise floor, emissions, DC offset.
+
+        Parameters
+        ----------
+        reference_ppm : float
+            Read the spectra as from a receiver whose reference ran this much (ppm) faster than the
+            rate and centre this surveyor was given (:mod:`iqsift.reference`): every bin frequency,
+            the rate and the bin widths scale by ``k = 1 + ppm·1e-6`` (densities by ``1/k``), exactly
+            what a second pass over the corrected capture would give, without reading it again.
+        snap : bool
+            Put carriers on the raster (when one was given); False analyses without it (no warnings
+            about carriers left off), as a reference-error estimate wants the measured carriers.
+        """
         if not self._coarse.ready:
             raise ParameterError(
                 f"survey: {self._count} samples fed, fewer than one segment of {self.nperseg}; feed more samples"
@@ -283,7 +298,25 @@ class Surveyor:
         fine_dof = None
         if fine is not None and self._fine is not None:
             fine_dof = welch_dof(self._fine.window, self._fine.nperseg - self._fine.noverlap, fine.segments_averaged)
-        return analyse_spectra(self, spec, fine, dof, fine_dof)
+        view = self
+        if reference_ppm or not snap:
+            view = copy.copy(self)  # the same sums and settings, read on another frequency scale
+            view.raster = self.raster if snap else None
+            if reference_ppm:
+                k = reference_factor(check_ppm("reference_ppm", reference_ppm))
+                view.rate_hz = self.rate_hz * k
+                view.center_hz = None if self.center_hz is None else self.center_hz * k
+                spec = _rescaled(spec, k)
+                fine = None if fine is None else _rescaled(fine, k)
+        return analyse_spectra(view, spec, fine, dof, fine_dof)
+
+
+def _rescaled(spectrum: Spectrum, k: float) -> Spectrum:
+    """``spectrum`` on a frequency scale ``k`` times the original (a density falls by ``1/k``)."""
+    shift_db = -10.0 * math.log10(k) if spectrum.scaling == "density" else 0.0
+    return dataclasses.replace(spectrum, freqs_hz=spectrum.freqs_hz * k, values_db=spectrum.values_db + shift_db,
+                               rate_hz=spectrum.rate_hz * k, center_hz=spectrum.center_hz * k,
+                               enbw_hz=spectrum.enbw_hz * k)
 
 
 REAL_TO_ANALYTIC_DB = 10.0 * math.log10(2.0)
@@ -302,7 +335,7 @@ def analytic_levels(spectrum: Spectrum) -> Spectrum:
     f = spectrum.relative_freqs_hz
     inner = (f > 0.0) & (f < 0.5 * spectrum.rate_hz)
     values[inner] += REAL_TO_ANALYTIC_DB
-    return replace(spectrum, values_db=values)
+    return dataclasses.replace(spectrum, values_db=values)
 
 
 def survey_capture(
@@ -350,6 +383,23 @@ def survey_capture(
     CaptureError
         For unreadable samples.
     """
+    return feed_capture(capture, threshold_db, raster, selection, resolution_hz, edge_guard=edge_guard,
+                        merge_gap_hz=merge_gap_hz, nonfinite=nonfinite, wrap_blocks=wrap_blocks).result()
+
+
+def feed_capture(
+    capture: Any,
+    threshold_db: float = DEFAULT_THRESHOLD_DB,
+    raster: str | Raster | None = None,
+    selection: Any = None,
+    resolution_hz: float | None = None,
+    *,
+    edge_guard: float = DEFAULT_EDGE_GUARD,
+    merge_gap_hz: float = DEFAULT_MERGE_GAP_HZ,
+    nonfinite: str = "error",
+    wrap_blocks: Callable[[Iterator[np.ndarray], int], Iterable[np.ndarray]] | None = None,
+) -> Surveyor:
+    """The :class:`Surveyor` of :func:`survey_capture` after its pass, before analysis (same parameters)."""
     if selection is None:
         selection = capture.select()
     centre = capture.center_for(selection)
@@ -371,7 +421,7 @@ def survey_capture(
         blocks = wrap_blocks(iter(blocks), selection.count)
     for block in blocks:
         sv.feed(block)
-    return sv.result()
+    return sv
 
 
 def baseband_passband_hz(metadata: dict[str, Any]) -> tuple[float, float] | None:
