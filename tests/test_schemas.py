@@ -61,6 +61,7 @@ def outputs(tmp_path_factory):
         "--report", out / "a.json", "--baseband", out / "a.sigmf-meta", "--json", "-q")
     run("demod", "demod", HF, "--offset", "0", "-e", "2K70J3E", "--engine", "polyphase", "-o", out / "b.wav",
         "--json", "-q")
+    run("demod", "demod", HF, "--offset", "0", "-m", "usb", "-b", "2.7k", "-o", out / "c.wav", "--json", "-q")
     run("measure", "measure", VHF, "--freq", "124.0916667M", "-e", "6K00A3E", "--json", "-q")
     run("measure", "measure", HF, "--offset", "0", "-e", "2K70J3E", "--json", "-q")
     run("extract", "extract", VHF, "--plan", out / "vhf.toml", "--out-dir", out / "vhf", "--json", "-q")

@@ -81,6 +81,8 @@ def format_extract(result: dict) -> str:
         where = c["frequency_hz"] if c["frequency_hz"] is not None else c["offset_hz"]
         carrier = ch.get("carrier") or {}
         err = carrier.get("error_hz")
+        if err is not None and round(err, 2) == 0:
+            err = 0.0  # no "-0.00"
         level = c.get("level_dbfs")
         lines.append(
             f"{c['name']:<24} {where:>16.1f} {c['mode']:>9} {'-' if level is None else f'{level:.1f}':>11} "
