@@ -119,6 +119,16 @@ class SampleSource(Protocol):
         """Release the file."""
 
 
+class BlockCorrection(Protocol):
+    """A correction applied to every block read (:mod:`iqsift.captures.iqcorrect`)."""
+
+    def apply(self, block: np.ndarray) -> np.ndarray:
+        """``block`` corrected."""
+
+    def to_dict(self) -> dict[str, Any]:
+        """What was corrected, for reports."""
+
+
 class Capture:
     """An opened capture file.
 
@@ -148,6 +158,9 @@ class Capture:
     verify : bool
         Check the data against the checksum its metadata records (SigMF ``core:sha512``) on every
         pass of :meth:`blocks` over the whole capture. A capture without one is never checked.
+    correction : BlockCorrection or None
+        Applied to every block :meth:`blocks` hands out (IQ imbalance and DC removal, set by
+        ``iq_correct`` in the jobs); None: samples as stored.
     """
 
     def __init__(
@@ -180,6 +193,7 @@ class Capture:
         self.clip_high = float(clip_high)
         self.can_hold_nonfinite = bool(can_hold_nonfinite)
         self.verify = bool(verify)
+        self.correction: BlockCorrection | None = None
 
     # -- metadata -------------------------------------------------------
     @property
@@ -392,6 +406,8 @@ class Capture:
                             "pass allow_nonfinite to replace such samples with 0", parameters=("allow_nonfinite",)
                         )
                     block = np.where(finite, block, np.complex64(0))
+            if self.correction is not None:
+                block = self.correction.apply(block)
             yield block
             position += n
 

@@ -5,7 +5,7 @@ from __future__ import annotations
 import typer
 
 from .app import app
-from .common import ProgressBar, emit_json
+from .common import ProgressBar, emit_json, live_input
 from .options import (
     CaptureArgument,
     CenterOption,
@@ -14,6 +14,7 @@ from .options import (
     FormatOption,
     JsonOption,
     NonfiniteOption,
+    IqCorrectOption,
     NoVerifyOption,
     OptStr,
     PlotFormatOption,
@@ -43,15 +44,16 @@ def extract_command(
     center: OptStr = CenterOption,
     strict: bool = StrictOption,
     no_verify: bool = NoVerifyOption,
+    iq_correct: bool = IqCorrectOption,
 ) -> None:
     """Extract every channel of a plan in one pass: <name>.wav per channel and report.json."""
     from ..jobs import extract_file  # here, not at the top: `iqsift --help` stays fast
 
-    with ProgressBar("extract", quiet) as progress:
+    with ProgressBar("extract", live_input(capture_path) or quiet) as progress:
         result = extract_file(
             capture_path, plan_path, out_dir, spectra=spectra, plot_format=plot_format, baseband=baseband,
             start=start, duration=duration, allow_nonfinite=allow_nonfinite, force=force, progress=progress,
-            format=format, rate=rate, center=center, strict=strict, verify=not no_verify,
+            format=format, rate=rate, center=center, strict=strict, verify=not no_verify, iq_correct=iq_correct,
         ).to_dict()
     if json_out:
         emit_json(result)

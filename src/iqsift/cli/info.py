@@ -8,12 +8,13 @@ import typer
 
 from ..units import format_hz
 from .app import app
-from .common import ProgressBar, emit_json
+from .common import ProgressBar, emit_json, live_input
 from .options import (
     CaptureArgument,
     CenterOption,
     FormatOption,
     JsonOption,
+    IqCorrectOption,
     NoVerifyOption,
     OptStr,
     QuietOption,
@@ -31,14 +32,15 @@ def info(
     center: OptStr = CenterOption,
     strict: bool = StrictOption,
     no_verify: bool = NoVerifyOption,
+    iq_correct: bool = IqCorrectOption,
     quiet: bool = QuietOption,
 ) -> None:
     """Describe a capture and measure its levels, DC offset, clipping and IQ imbalance."""
     from ..jobs import info_file  # here, not at the top: `iqsift --help` stays fast
 
-    with ProgressBar("measuring", quiet) as progress:
+    with ProgressBar("measuring", live_input(capture_path) or quiet) as progress:
         result = info_file(capture_path, format=format, rate=rate, center=center, strict=strict,
-                           progress=progress, verify=not no_verify).to_dict()
+                           progress=progress, verify=not no_verify, iq_correct=iq_correct).to_dict()
     if json_out:
         emit_json(result)
     else:
@@ -97,5 +99,12 @@ def format_info(result: dict[str, Any]) -> str:
         lines.append(
             f"IQ imbalance  gain {stats['gain_imbalance_db']:+.3f} dB, phase {stats['phase_imbalance_deg']:+.3f} deg, "
             f"image rejection {'>90' if irr is None or irr > 90 else f'{irr:.1f}'} dB (assumes a noise-like signal)"
+        )
+    corr = result.get("iq_correction")
+    if corr:
+        lines.append(
+            f"IQ corrected  {corr['method']} estimate removed gain {corr['gain_imbalance_db']:+.3f} dB, phase "
+            f"{corr['phase_imbalance_deg']:+.3f} deg, DC I {corr['dc_i']:+.5f} Q {corr['dc_q']:+.5f} "
+            "(the figures above are after correction)"
         )
     return "\n".join(lines)

@@ -17,7 +17,8 @@ __all__ = ["FLAGS", "PHRASES", "in_flag_words", "OptStr"]
 OptStr = Optional[str]
 
 # -- reading a capture --------------------------------------------------------------------------
-CaptureArgument = typer.Argument(..., metavar="CAPTURE", help="Capture file (SigMF, WAV/FLAC, or raw).")
+CaptureArgument = typer.Argument(
+    ..., metavar="CAPTURE", help="Capture file (SigMF, WAV/FLAC, or raw); - reads raw samples from standard input.")
 FormatOption = typer.Option(
     None, "--format", help="Datatype of a raw capture (SigMF name: cf32_le, ci16_le, cu8 ...)."
 )
@@ -31,6 +32,11 @@ NoVerifyOption = typer.Option(
     False, "--no-verify",
     help="Do not check the data against the SHA-512 its SigMF metadata records (core:sha512). The check runs "
          "while the whole capture streams through; it is skipped anyway when --start/--duration select a part.",
+)
+IqCorrectOption = typer.Option(
+    False, "--iq-correct",
+    help="Estimate the IQ gain/phase imbalance and DC offset (a first pass over a file, a running estimate on "
+         "standard input) and remove them before any processing; reports record the correction.",
 )
 
 # -- output and terminal ------------------------------------------------------------------------
@@ -78,6 +84,8 @@ FLAGS: dict[str, str] = {
     "out_dir": "--out-dir",
     "ripple_db": "--ripple",
     "atten_db": "--atten",
+    "iq_correct": "--iq-correct",
+    "audio_format": "--audio-format",
 }
 """Python parameter name -> the flag that sets it."""
 

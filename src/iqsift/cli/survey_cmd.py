@@ -19,6 +19,7 @@ from .options import (
     FormatOption,
     JsonOption,
     NonfiniteOption,
+    IqCorrectOption,
     NoVerifyOption,
     OptStr,
     QuietOption,
@@ -72,6 +73,7 @@ def survey(
     center: OptStr = CenterOption,
     strict: bool = StrictOption,
     no_verify: bool = NoVerifyOption,
+    iq_correct: bool = IqCorrectOption,
 ) -> None:
     """Find the emissions in a capture: frequency, level, bandwidth, class; optionally write a channel plan."""
     from ..jobs import survey_file  # here, not at the top: `iqsift --help` stays fast
@@ -83,7 +85,7 @@ def survey(
         result = survey_file(
             capture_path, threshold_db=threshold_db, raster=raster, plan_out=plan_out, resolution_hz=resolution_hz,
             start=start, duration=duration, allow_nonfinite=allow_nonfinite, force=force, progress=progress,
-            format=format, rate=rate, center=center, strict=strict, verify=not no_verify,
+            format=format, rate=rate, center=center, strict=strict, verify=not no_verify, iq_correct=iq_correct,
         )
     report = result.to_dict()
     if json_out:
@@ -139,6 +141,7 @@ def format_survey(report: dict[str, Any]) -> str:
             f"DC offset  {dc['level_dbfs']:.1f} dBFS (I {dc['i']:+.5f}, Q {dc['q']:+.5f}); "
             f"0 Hz bin {dc['spike_above_floor_db']:.1f} dB above the floor ({state})"
         )
+    lines.extend(_iq_lines(report))
     emissions = report["emissions"]
     if not emissions:
         lines.append(f"emissions  none at {report['threshold_db']:g} dB above the floor")
@@ -160,9 +163,26 @@ def format_survey(report: dict[str, Any]) -> str:
             f"{e['peak_above_floor_db']:>8.1f}  {occ:>7.0f}Hz  {cls:<9} {e['designator']:<10} {channel:<10} "
             f"{e['confidence']}: {e['note']}"
         )
+    for e in report.get("images") or []:
+        lines.append(f"image      {_freq(e['frequency_hz'], has_centre)} ({e['level_dbfs']:.1f} dBFS): {e['note']}")
     if report.get("plan"):
         lines.append(f"plan       {report['plan']}")
     return "\n".join(lines)
+
+
+def _iq_lines(report: dict[str, Any]) -> list[str]:
+    """The IQ correction applied and the image rejection, for people."""
+    lines = []
+    corr = (report.get("capture") or {}).get("iq_correction")
+    if corr:
+        lines.append(f"IQ         corrected ({corr['method']}): gain {corr['gain_imbalance_db']:+.3f} dB, "
+                     f"phase {corr['phase_imbalance_deg']:+.3f} deg, DC I {corr['dc_i']:+.5f} Q {corr['dc_q']:+.5f} "
+                     "removed")
+    irr = report.get("image_rejection_db")
+    if irr is not None and report.get("is_complex"):
+        lines.append(f"images     image rejection {irr:.1f} dB (IQ moments); {len(report.get('images') or [])} "
+                     "mirror image(s) left out")
+    return lines
 
 
 def _expected(value: float) -> str:

@@ -30,6 +30,7 @@ __all__ = [
     "nonfinite_policy",
     "opened",
     "stamped",
+    "with_iq_correction",
 ]
 
 CaptureArg: TypeAlias = Union[str, "os.PathLike[str]", Capture]
@@ -55,11 +56,14 @@ def opened(
     center: str | float | None = None,
     strict: bool = False,
     verify: bool = True,
+    iq_correct: bool = False,
 ) -> Iterator[Capture]:
     """The capture, opened here (and closed on exit) when given as a path; as it is when already open.
 
     With ``verify`` false the capture's recorded checksum is not checked (see
     :attr:`~iqsift.captures.Capture.verify`); an already opened capture gets its own setting back on exit.
+    With ``iq_correct`` the IQ gain and phase imbalance and the DC offset are estimated and removed
+    from every block read (:func:`with_iq_correction`).
 
     Raises
     ------
@@ -71,16 +75,46 @@ def opened(
         given = [name for name, value in (("format", format), ("rate", rate), ("center", center)) if value is not None]
         if given:
             raise ParameterError(f"{', '.join(given)}: only for a capture given by path; {capture.path} is already open")
-        own_setting = capture.verify
+        own_setting, own_correction = capture.verify, capture.correction
         capture.verify = own_setting and verify
         try:
+            if iq_correct:
+                with_iq_correction(capture)
             yield capture
         finally:
-            capture.verify = own_setting
+            capture.verify, capture.correction = own_setting, own_correction
         return
     with open_capture(capture, format=format, rate=rate, center=center, strict=strict,
                       verify=verify) as opened_capture:
+        if iq_correct:
+            with_iq_correction(opened_capture)
         yield opened_capture
+
+
+def with_iq_correction(capture: Capture) -> Capture:
+    """Make ``capture`` remove its IQ imbalance and DC offset from every block it hands out.
+
+    A file gets a first pass over the whole capture (one fixed correction, so every block and
+    every part selected later is corrected alike); standard input, which cannot be read twice, a
+    running estimate (:mod:`iqsift.captures.iqcorrect`).
+
+    Raises
+    ------
+    ParameterError
+        For a real-valued capture (it has no Q path to be out of balance).
+    """
+    from ..captures.iqcorrect import RunningCorrection, estimate_correction
+    from ..captures.stream import StreamCapture
+
+    if not capture.is_complex:
+        raise ParameterError(f"iq_correct: {capture.path} is real-valued (datatype {capture.datatype}); "
+                             "IQ imbalance applies to complex captures only")
+    capture.correction = None
+    if isinstance(capture, StreamCapture):
+        capture.correction = RunningCorrection()
+    else:
+        capture.correction = estimate_correction(capture.blocks(nonfinite="zero"), capture.clip_high)
+    return capture
 
 
 def check_plot_format(plot_format: str) -> str:
@@ -125,6 +159,8 @@ class CaptureSummary:
         Length in seconds.
     segments, annotations : tuple of dict
         SigMF capture segments and annotations.
+    iq_correction : dict or None
+        The IQ imbalance and DC correction applied (``iq_correct``), None when none was.
     """
 
     path: str
@@ -137,6 +173,7 @@ class CaptureSummary:
     duration_s: float
     segments: tuple[Mapping[str, Any], ...]
     annotations: tuple[Mapping[str, Any], ...]
+    iq_correction: Mapping[str, Any] | None = None
 
     @classmethod
     def of(cls, capture: Capture) -> "CaptureSummary":
@@ -152,6 +189,7 @@ class CaptureSummary:
             duration_s=capture.duration_s,
             segments=tuple(s.as_dict() for s in capture.segments),
             annotations=tuple(a.as_dict() for a in capture.annotations),
+            iq_correction=None if capture.correction is None else capture.correction.to_dict(),
         )
 
     def to_dict(self) -> dict[str, Any]:
@@ -167,6 +205,7 @@ class CaptureSummary:
             "duration_s": self.duration_s,
             "segments": [dict(s) for s in self.segments],
             "annotations": [dict(a) for a in self.annotations],
+            "iq_correction": None if self.iq_correction is None else dict(self.iq_correction),
         }
 
 
@@ -182,7 +221,8 @@ class SelectionSummary:
     @classmethod
     def of(cls, capture: Capture, selection: SampleRange) -> "SelectionSummary":
         rate = capture.sample_rate_hz
-        return cls(selection.start / rate, selection.count / rate, selection.start, selection.count)
+        count = min(selection.count, capture.samples - selection.start)  # a stream's length is known at its end
+        return cls(selection.start / rate, count / rate, selection.start, count)
 
     def to_dict(self) -> dict[str, Any]:
         return {"start_s": self.start_s, "duration_s": self.duration_s,

@@ -9,7 +9,9 @@ from pathlib import Path
 from typing import Any
 
 from ..captures import AudioWriter, OutputSet
+from ..captures.audio_stream import StreamAudioWriter
 from ..channel import Channel
+from ..errors import ParameterError
 from ..receiver import Receiver, ReceiverReport
 from .common import (
     CaptureArg,
@@ -105,6 +107,8 @@ def demod_file(
     center: str | float | None = None,
     strict: bool = False,
     verify: bool = True,
+    iq_correct: bool = False,
+    audio_format: str = "wav",
 ) -> DemodResult:
     """Demodulate one channel of a capture to a WAV/FLAC file.
 
@@ -119,7 +123,8 @@ def demod_file(
     channel : Channel
         What to receive (see :func:`iqsift.make_channel`).
     output : path
-        Audio file, ``.wav`` or ``.flac`` (16-bit).
+        Audio file, ``.wav`` or ``.flac`` (16-bit); ``"-"``: standard output, each block as soon as it
+        is made (:class:`~iqsift.captures.audio_stream.StreamAudioWriter`).
     baseband : path, optional
         Also write the channel baseband as SigMF (cf32_le at the channel rate).
     report : path, optional
@@ -146,11 +151,20 @@ def demod_file(
         Check a SigMF capture's data against its ``core:sha512`` while reading it (when the whole
         capture is read; a part selected by ``start``/``duration`` is not checked). On a mismatch
         :class:`~iqsift.captures.ChecksumError` is raised and nothing is written.
+    audio_format : {"wav", "s16"}
+        With ``output="-"``: a WAV stream of unknown length, or raw 16-bit little-endian samples.
+    iq_correct : bool
+        Estimate the IQ gain and phase imbalance and the DC offset (a first pass over a file, a
+        running estimate on standard input) and remove them before any processing; the report's
+        ``capture.iq_correction`` records what was removed.
     """
     check_plot_format(plot_format)
+    if audio_format != "wav" and str(output) != "-":
+        raise ParameterError(f"audio_format: {audio_format!r} is for audio on standard output (output '-'); "
+                             f"{output} takes its format from its extension")
     started = time.perf_counter()
     with opened(capture, format=format, rate=rate, center=center, strict=strict,
-                verify=verify) as cap:
+                verify=verify, iq_correct=iq_correct) as cap:
         selection = cap.select(start, duration)
         receiver = Receiver.for_capture(cap, channel, selection, engine=engine, agc=agc, spectra=bool(spectra))
         spectra_dir = Path(spectra) if spectra else None
@@ -161,7 +175,11 @@ def demod_file(
             check_stage_plot_folder(spectra_dir, plot_format, force)  # before any work
             keeper = AudioKeeper.attach(receiver)
         with OutputSet(force=force, protect=cap.files) as outputs:
-            audio_writer = AudioWriter(output, receiver.audio_rate_hz, outputs=outputs)
+            audio_writer: AudioWriter | StreamAudioWriter
+            if str(output) == "-":
+                audio_writer = StreamAudioWriter(receiver.audio_rate_hz, audio_format)
+            else:
+                audio_writer = AudioWriter(output, receiver.audio_rate_hz, outputs=outputs)
             report_tmp = outputs.reserve(report) if report else None
             bb_writer = None
             if baseband:

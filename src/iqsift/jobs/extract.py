@@ -120,6 +120,7 @@ def extract_file(
     center: str | float | None = None,
     strict: bool = False,
     verify: bool = True,
+    iq_correct: bool = False,
 ) -> ExtractResult:
     """Extract every channel of a plan in one pass: ``<name>.wav`` per channel and ``report.json``.
 
@@ -152,7 +153,7 @@ def extract_file(
     if folder.exists() and not folder.is_dir():
         raise ParameterError(f"out_dir {folder}: exists and is not a folder", parameters=("out_dir",))
     with opened(capture, format=format, rate=rate, center=center, strict=strict,
-                verify=verify) as cap:
+                verify=verify, iq_correct=iq_correct) as cap:
         selection = cap.select(start, duration)
         extractor = Extractor.from_plan(cap, plan_obj, selection=selection, spectra=spectra)
         parent = folder.parent if str(folder.parent) else Path(".")

@@ -34,6 +34,7 @@ def info_file(
     strict: bool = False,
     progress: Progress | None = None,
     verify: bool = True,
+    iq_correct: bool = False,
 ) -> InfoResult:
     """Describe a capture and measure it in one pass (NaN/Inf samples are counted, not refused).
 
@@ -48,8 +49,13 @@ def info_file(
     verify : bool
         Check a SigMF capture's data against its ``core:sha512`` while reading it; a mismatch
         raises :class:`~iqsift.captures.ChecksumError`.
+    iq_correct : bool
+        Remove the IQ imbalance and DC offset (a first pass over a file, a running estimate on
+        standard input) before measuring: the statistics then describe the corrected samples, and
+        ``iq_correction`` what was removed.
     """
-    with opened(capture, format=format, rate=rate, center=center, strict=strict, verify=verify) as cap:
+    with opened(capture, format=format, rate=rate, center=center, strict=strict, verify=verify,
+                iq_correct=iq_correct) as cap:
         acc = StatsAccumulator(cap.is_complex, cap.clip_high)
         for block in counted(cap.blocks(nonfinite="keep"), cap.samples, progress):
             acc.update(block)

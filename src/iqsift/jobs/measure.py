@@ -65,6 +65,7 @@ def measure_file(
     center: str | float | None = None,
     strict: bool = False,
     verify: bool = True,
+    iq_correct: bool = False,
 ) -> MeasureResult:
     """Measure one channel of a capture; writes nothing.
 
@@ -86,7 +87,7 @@ def measure_file(
         As for :func:`demod_file`.
     """
     with opened(capture, format=format, rate=rate, center=center, strict=strict,
-                verify=verify) as cap:
+                verify=verify, iq_correct=iq_correct) as cap:
         selection = cap.select(start, duration)
         receiver = Receiver.for_capture(cap, channel, selection, agc=False).analyze(
             tone_hz=tone_hz, weighting=weighting, x_db=x_db, activity={"threshold_db": threshold_db},

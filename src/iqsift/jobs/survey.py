@@ -70,6 +70,7 @@ def survey_file(
     center: str | float | None = None,
     strict: bool = False,
     verify: bool = True,
+    iq_correct: bool = False,
 ) -> SurveyReport:
     """Survey a capture in one streaming pass.
 
@@ -94,7 +95,7 @@ def survey_file(
     with OutputSet(force=force, protect=protect) as outputs:
         plan_tmp = outputs.reserve(plan_out) if plan_out else None  # checked before any work
         with opened(capture, format=format, rate=rate, center=center, strict=strict,
-                    verify=verify) as cap:
+                    verify=verify, iq_correct=iq_correct) as cap:
             selection = cap.select(start, duration)
             if raster_obj is not None and cap.center_for(selection) is None:
                 raise ParameterError(

@@ -8,16 +8,19 @@ longer segments; :meth:`Surveyor.result` hands them to
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from typing import Any, Callable, Iterable, Iterator
 
 import numpy as np
 
+from ..captures.stats import StatsAccumulator
 from ..errors import ParameterError
 from ..rasters import Raster, parse_raster
 from ..spectra import WelchAccumulator
 from .analysis import analyse_spectra
 from .formulas import welch_dof
+from .images import split_images
 from .results import SurveyResult
 
 __all__ = [
@@ -214,6 +217,7 @@ class Surveyor:
         )
         self._sum = 0j
         self._count = 0
+        self._moments = StatsAccumulator(True)  # the IQ imbalance, for telling mirror images
 
     @property
     def nperseg(self) -> int:
@@ -247,6 +251,7 @@ class Surveyor:
             self._fine.reset()
         self._sum = 0j
         self._count = 0
+        self._moments = StatsAccumulator(True)
 
     def feed(self, block: Any) -> "Surveyor":
         """Add a block of samples (complex64 from :meth:`Capture.blocks`, or real)."""
@@ -262,6 +267,8 @@ class Surveyor:
             self._fine.feed(x)
         self._sum += complex(np.sum(x, dtype=np.complex128))
         self._count += x.size
+        if self.is_complex:
+            self._moments.update(x)
         return self
 
     __call__ = feed
@@ -279,7 +286,10 @@ class Surveyor:
         fine_dof = None
         if fine is not None and self._fine is not None:
             fine_dof = welch_dof(self._fine.window, self._fine.nperseg - self._fine.noverlap, fine.segments_averaged)
-        return analyse_spectra(self, spec, fine, dof, fine_dof)
+        found = analyse_spectra(self, spec, fine, dof, fine_dof)
+        irr_db = self._moments.result().image_rejection_db if self.is_complex else None
+        emissions, images = split_images(found.emissions, irr_db, spec.bin_width_hz)
+        return dataclasses.replace(found, emissions=emissions, images=images, image_rejection_db=irr_db)
 
 
 def survey_capture(
