@@ -128,7 +128,7 @@ class DetectedEmission:
                 "error_hz": self.raster_error_hz,
                 "tolerance_hz": self.raster_tolerance_hz,
             }
-        reason = {} if self.raster_reason is None else {"raster_reason": self.raster_reason}
+        reason: dict[str, Any] = {} if self.raster_reason is None else {"raster_reason": self.raster_reason}
         if self.image_of is not None:
             reason["image_of"] = self.image_of
         return {
