@@ -179,9 +179,10 @@ def _iq_lines(report: dict[str, Any]) -> list[str]:
                      f"phase {corr['phase_imbalance_deg']:+.3f} deg, DC I {corr['dc_i']:+.5f} Q {corr['dc_q']:+.5f} "
                      "removed")
     irr = report.get("image_rejection_db")
-    if irr is not None and report.get("is_complex"):
-        lines.append(f"images     image rejection {irr:.1f} dB (IQ moments); {len(report.get('images') or [])} "
-                     "mirror image(s) left out")
+    if irr is not None and (corr or report.get("images")):
+        shown = ">90" if irr > 90 else f"{irr:.1f}"
+        lines.append(f"images     image rejection {shown} dB (IQ moments{', after correction' if corr else ''}); "
+                     f"{len(report.get('images') or [])} mirror image(s) left out")
     return lines
 
 
