@@ -224,3 +224,9 @@ def test_pcm16_conversion_matches_the_file_writer(tmp_path, rng):
     soundfile.write(path, x, AUDIO_RATE, subtype="PCM_16")  # libsndfile, the reference
     ref, _ = soundfile.read(path, dtype="int16")
     assert np.array_equal(to_pcm16(np.clip(x, -1, 1)), ref)
+
+
+def test_survey_refuses_standard_input():
+    run = subprocess.run([sys.executable, "-m", "iqsift", "survey", "-", *READ], input=b"\0" * 4000,
+                         capture_output=True, cwd=ROOT)
+    assert run.returncode == 2 and "standard input" in run.stderr.decode() and run.stderr.decode().count("\n") == 1

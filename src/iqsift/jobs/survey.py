@@ -90,6 +90,9 @@ def survey_file(
     start, duration, allow_nonfinite, force, progress, format, rate, center, strict, verify
         As for :func:`demod_file`.
     """
+    if isinstance(capture, str) and capture == "-":
+        raise ParameterError("survey: needs a capture file; standard input (-) has no known length to choose the "
+                             "resolution from (use info, demod, measure or extract on a live stream)")
     raster_obj = parse_raster(raster) if isinstance(raster, str) else raster
     protect = input_files(capture) if isinstance(capture, (str, os.PathLike)) else capture.files
     with OutputSet(force=force, protect=protect) as outputs:
