@@ -121,6 +121,16 @@ class SampleSource(Protocol):
         """Release the file."""
 
 
+class BlockCorrection(Protocol):
+    """A correction applied to every block read (:mod:`iqsift.captures.iqcorrect`)."""
+
+    def apply(self, block: np.ndarray) -> np.ndarray:
+        """``block`` corrected."""
+
+    def to_dict(self) -> dict[str, Any]:
+        """What was corrected, for reports."""
+
+
 class Capture:
     """An opened capture file.
 
@@ -154,6 +164,9 @@ class Capture:
         The receiver reference error corrected for (ppm, :meth:`correct_reference`); 0 as opened.
     nominal_sample_rate_hz : float
         The sample rate the file states (before any correction).
+    correction : BlockCorrection or None
+        Applied to every block :meth:`blocks` hands out (IQ imbalance and DC removal, set by
+        ``iq_correct`` in the jobs); None: samples as stored.
     """
 
     def __init__(
@@ -189,6 +202,7 @@ class Capture:
         self.reference_ppm = 0.0
         self.nominal_sample_rate_hz = self.sample_rate_hz
         self._nominal = (self.segments, self.annotations)
+        self.correction: BlockCorrection | None = None
 
     def correct_reference(self, ppm: float) -> "Capture":
         """Read the capture as made by a receiver whose reference ran ``ppm`` parts per million fast.
@@ -426,6 +440,8 @@ class Capture:
                             "pass allow_nonfinite to replace such samples with 0", parameters=("allow_nonfinite",)
                         )
                     block = np.where(finite, block, np.complex64(0))
+            if self.correction is not None:
+                block = self.correction.apply(block)
             yield block
             position += n
 

@@ -11,6 +11,7 @@ from .audio import AUDIO_FORMATS, read_audio_capture
 from .capture import Capture
 from .raw import read_raw
 from .sigmf import read_sigmf, read_sigmf_archive
+from .stream import STDIN, open_stream
 
 __all__ = ["open_capture", "capture_kind", "input_files"]
 
@@ -29,6 +30,8 @@ def capture_kind(path: str | os.PathLike) -> str:
 
 def input_files(path: str | os.PathLike) -> tuple[Path, ...]:
     """The files a capture path stands for (both files of a SigMF pair), without opening anything."""
+    if str(path) == STDIN:
+        return ()
     path = Path(path)
     if capture_kind(path) == "sigmf":
         from .sigmf import sigmf_paths
@@ -53,7 +56,8 @@ def open_capture(
     path : path
         The capture. SigMF is recognised by ``.sigmf-meta``/``.sigmf-data``
         (either file of the pair), an archive by ``.sigmf``, audio by ``.wav``
-        or ``.flac``; anything else is raw.
+        or ``.flac``; ``"-"`` is standard input (raw samples as they arrive, see
+        :mod:`iqsift.captures.stream`); anything else is raw.
     format : str, optional
         SigMF datatype of a raw file (``cf32_le``, ``ci16_le``, ``cu8`` ...).
     rate : float or str, optional
@@ -75,9 +79,11 @@ def open_capture(
     ParameterError
         For invalid options.
     """
-    path = Path(path)
     rate_hz = None if rate is None else parse_positive_hz(rate, "rate")
     center_hz = None if center is None else parse_frequency(center, "center")
+    if str(path) == STDIN:
+        return open_stream(format=format, rate=rate_hz, center=center_hz)
+    path = Path(path)
     kind = capture_kind(path)
     if kind == "sigmf":
         if format is not None:

@@ -6,7 +6,7 @@ import sys
 import time
 from typing import Any, Callable
 
-__all__ = ["emit_json", "Progress", "ProgressBar", "reference_text"]
+__all__ = ["emit_json", "live_input", "Progress", "ProgressBar", "reference_text"]
 
 
 def emit_json(obj: Any) -> None:
@@ -14,6 +14,17 @@ def emit_json(obj: Any) -> None:
     from ..jsonable import dumps  # numpy-aware: imported when there is something to print
 
     sys.stdout.write(dumps(obj))
+
+
+def live_input(capture_path: str) -> bool:
+    """Whether the capture is standard input (``-``); if so, SIGINT from now on ends the input, not the run
+    (:func:`~iqsift.cli.interrupts.end_input_on_sigint`). A stream of unknown length shows no progress bar."""
+    if capture_path != "-":
+        return False
+    from .interrupts import end_input_on_sigint
+
+    end_input_on_sigint()
+    return True
 
 
 class Progress:

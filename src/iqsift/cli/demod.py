@@ -10,7 +10,7 @@ import typer
 from ..channel import make_channel
 from ..errors import ParameterError
 from .app import app
-from .common import ProgressBar, emit_json, reference_text
+from .common import ProgressBar, emit_json, live_input, reference_text
 from .options import (
     AgcOption,
     AudioRateOption,
@@ -26,6 +26,7 @@ from .options import (
     JsonOption,
     ModeOption,
     NonfiniteOption,
+    IqCorrectOption,
     NoVerifyOption,
     OffsetOption,
     OptStr,
@@ -49,7 +50,11 @@ def demod(
     audio_rate: str = AudioRateOption,
     start: OptStr = StartOption,
     duration: OptStr = DurationOption,
-    output: str = typer.Option(..., "--output", "-o", help="Audio output: OUT.wav or OUT.flac."),
+    output: str = typer.Option(..., "--output", "-o", help="Audio output: OUT.wav, OUT.flac, or - (standard output, "
+                                                          "as it is made)."),
+    audio_format: str = typer.Option("wav", "--audio-format",
+                                     help="With -o -: wav (a WAV stream of unknown length) or s16 (raw 16-bit "
+                                          "little-endian samples)."),
     baseband: OptStr = typer.Option(None, "--baseband", help="Also write the channel baseband as SigMF."),
     report: OptStr = typer.Option(None, "--report", help="Also write the JSON report to this file."),
     spectra: OptStr = typer.Option(None, "--spectra", help="Write stage spectra plots and their data into this folder."),
@@ -71,26 +76,30 @@ def demod(
         None, "--annotate", metavar="OUT.sigmf-meta",
         help="Write SigMF metadata of the same recording with one annotation per activity segment of the "
              "channel (the channel is then measured as by 'measure')."),
+    iq_correct: bool = IqCorrectOption,
 ) -> None:
     """Demodulate one channel to audio (AM envelope/coherent, USB, LSB, DSB)."""
     if squelch is not None and not (0 <= squelch < 200):
         raise ParameterError(f"--squelch: must be between 0 and 200 dB, got {squelch!r}")
+    if output == "-" and json_out:
+        raise ParameterError("--json: standard output carries the audio (-o -); write the JSON with --report")
     channel = make_channel(freq=freq, offset=offset, bandwidth=bandwidth, emission=emission, mode=mode,
-                           audio_rate=audio_rate, name=Path(output).stem, squelch_db=squelch)
+                           audio_rate=audio_rate, name="stdout" if output == "-" else Path(output).stem,
+                           squelch_db=squelch)
     from ..jobs import demod_file  # here, not at the top: `iqsift --help` stays fast
 
-    with ProgressBar("demod", quiet) as progress:
+    with ProgressBar("demod", live_input(capture_path) or quiet) as progress:
         result = demod_file(
             capture_path, channel, output, baseband=baseband, report=report, spectra=spectra,
             plot_format=plot_format, engine=engine, agc=agc, start=start, duration=duration,
             allow_nonfinite=allow_nonfinite, force=force, progress=progress,
             format=format, rate=rate, center=center, strict=strict, verify=not no_verify, ppm=ppm,
-            annotate=annotate,
+            annotate=annotate, iq_correct=iq_correct, audio_format=audio_format,
         ).to_dict()
     if json_out:
         emit_json(result)
     else:
-        typer.echo(format_demod(result))
+        typer.echo(format_demod(result), err=output == "-")  # stdout carries the audio
 
 
 def format_demod(result: dict) -> str:

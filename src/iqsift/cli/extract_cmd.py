@@ -7,7 +7,7 @@ from typing import Optional
 import typer
 
 from .app import app
-from .common import ProgressBar, emit_json, reference_text
+from .common import ProgressBar, emit_json, live_input, reference_text
 from .options import (
     CaptureArgument,
     CenterOption,
@@ -16,6 +16,7 @@ from .options import (
     FormatOption,
     JsonOption,
     NonfiniteOption,
+    IqCorrectOption,
     NoVerifyOption,
     OptStr,
     PpmOption,
@@ -51,16 +52,17 @@ def extract_command(
         None, "--annotate", metavar="OUT.sigmf-meta",
         help="Write SigMF metadata of the same recording with one annotation per activity segment of every "
              "channel."),
+    iq_correct: bool = IqCorrectOption,
 ) -> None:
     """Extract every channel of a plan in one pass: <name>.wav per channel and report.json."""
     from ..jobs import extract_file  # here, not at the top: `iqsift --help` stays fast
 
-    with ProgressBar("extract", quiet) as progress:
+    with ProgressBar("extract", live_input(capture_path) or quiet) as progress:
         result = extract_file(
             capture_path, plan_path, out_dir, spectra=spectra, plot_format=plot_format, baseband=baseband,
             start=start, duration=duration, allow_nonfinite=allow_nonfinite, force=force, progress=progress,
             format=format, rate=rate, center=center, strict=strict, verify=not no_verify, ppm=ppm,
-            annotate=annotate,
+            annotate=annotate, iq_correct=iq_correct,
         ).to_dict()
     if json_out:
         emit_json(result)

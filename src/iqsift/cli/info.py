@@ -8,12 +8,13 @@ import typer
 
 from ..units import format_hz
 from .app import app
-from .common import ProgressBar, emit_json, reference_text
+from .common import ProgressBar, emit_json, live_input, reference_text
 from .options import (
     CaptureArgument,
     CenterOption,
     FormatOption,
     JsonOption,
+    IqCorrectOption,
     NoVerifyOption,
     OptStr,
     PpmOption,
@@ -33,14 +34,15 @@ def info(
     strict: bool = StrictOption,
     no_verify: bool = NoVerifyOption,
     ppm: Optional[float] = PpmOption,
+    iq_correct: bool = IqCorrectOption,
     quiet: bool = QuietOption,
 ) -> None:
     """Describe a capture and measure its levels, DC offset, clipping and IQ imbalance."""
     from ..jobs import info_file  # here, not at the top: `iqsift --help` stays fast
 
-    with ProgressBar("measuring", quiet) as progress:
+    with ProgressBar("measuring", live_input(capture_path) or quiet) as progress:
         result = info_file(capture_path, format=format, rate=rate, center=center, strict=strict,
-                           progress=progress, verify=not no_verify, ppm=ppm).to_dict()
+                           progress=progress, verify=not no_verify, ppm=ppm, iq_correct=iq_correct).to_dict()
     if json_out:
         emit_json(result)
     else:
@@ -103,4 +105,11 @@ def format_info(result: dict[str, Any]) -> str:
     ref = reference_text(result)
     if ref:
         lines.append(f"reference     {ref}")
+    corr = result.get("iq_correction")
+    if corr:
+        lines.append(
+            f"IQ corrected  {corr['method']} estimate removed gain {corr['gain_imbalance_db']:+.3f} dB, phase "
+            f"{corr['phase_imbalance_deg']:+.3f} deg, DC I {corr['dc_i']:+.5f} Q {corr['dc_q']:+.5f} "
+            "(the figures above are after correction)"
+        )
     return "\n".join(lines)

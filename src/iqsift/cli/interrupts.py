@@ -27,7 +27,7 @@ import threading
 from types import FrameType
 from typing import Any, Callable
 
-__all__ = ["Interrupted", "ignore_interrupts", "raise_on_interrupts"]
+__all__ = ["Interrupted", "end_input_on_sigint", "ignore_interrupts", "raise_on_interrupts"]
 
 STOP_SIGNALS = (signal.SIGINT, signal.SIGTERM)
 REPEAT_S = 0.25
@@ -108,3 +108,24 @@ def raise_on_interrupts() -> Callable[[], None]:
         sys.unraisablehook = previous_hook
 
     return restore
+
+
+def end_input_on_sigint() -> None:
+    """While standard input is the capture, SIGINT ends the input instead of the run.
+
+    With a live stream, SIGINT is how a user stops: the samples read so far are processed and the
+    outputs completed and kept (exit 0), as at the end of the input
+    (:func:`iqsift.captures.stream.request_stop`). A second SIGINT, or SIGTERM, still stops the run
+    and leaves nothing behind (exit 130/143). Call after :func:`raise_on_interrupts`; its restore
+    function puts the previous handler back.
+    """
+    if threading.current_thread() is not threading.main_thread():
+        return
+    from ..captures.stream import request_stop, stop_requested
+
+    def end_input(signum: int, frame: FrameType | None) -> None:
+        if stop_requested():
+            _raise(signum, frame)  # the second: stop the run
+        request_stop()  # raises inside a waiting read, ending it
+
+    signal.signal(signal.SIGINT, end_input)

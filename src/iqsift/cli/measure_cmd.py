@@ -9,7 +9,7 @@ import typer
 from ..channel import make_channel
 from ..units import parse_positive_hz
 from .app import app
-from .common import ProgressBar, emit_json, reference_text
+from .common import ProgressBar, emit_json, live_input, reference_text
 from .options import (
     AudioRateOption,
     BandwidthOption,
@@ -22,6 +22,7 @@ from .options import (
     JsonOption,
     ModeOption,
     NonfiniteOption,
+    IqCorrectOption,
     NoVerifyOption,
     OffsetOption,
     OptStr,
@@ -57,6 +58,7 @@ def measure_command(
     strict: bool = StrictOption,
     no_verify: bool = NoVerifyOption,
     ppm: Optional[float] = PpmOption,
+    iq_correct: bool = IqCorrectOption,
 ) -> None:
     """Measure carrier frequency error and level, modulation depth, SNR/SINAD/THD, bandwidths and activity."""
     tone_hz = None if tone is None else parse_positive_hz(tone, "--tone")
@@ -64,11 +66,12 @@ def measure_command(
                            audio_rate=audio_rate, name="measured")
     from ..jobs import measure_file  # here, not at the top: `iqsift --help` stays fast
 
-    with ProgressBar("measuring", quiet) as progress:
+    with ProgressBar("measuring", live_input(capture_path) or quiet) as progress:
         result = measure_file(
             capture_path, channel, tone_hz=tone_hz, weighting=weighting, x_db=x_db, threshold_db=threshold,
             start=start, duration=duration, allow_nonfinite=allow_nonfinite, progress=progress,
             format=format, rate=rate, center=center, strict=strict, verify=not no_verify, ppm=ppm,
+            iq_correct=iq_correct,
         ).to_dict()
     if json_out:
         emit_json(result)

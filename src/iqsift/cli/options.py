@@ -17,7 +17,8 @@ __all__ = ["FLAGS", "PHRASES", "in_flag_words", "OptStr"]
 OptStr = Optional[str]
 
 # -- reading a capture --------------------------------------------------------------------------
-CaptureArgument = typer.Argument(..., metavar="CAPTURE", help="Capture file (SigMF, WAV/FLAC, or raw).")
+CaptureArgument = typer.Argument(
+    ..., metavar="CAPTURE", help="Capture file (SigMF, WAV/FLAC, or raw); - reads raw samples from standard input.")
 FormatOption = typer.Option(
     None, "--format", help="Datatype of a raw capture (SigMF name: cf32_le, ci16_le, cu8 ...)."
 )
@@ -36,6 +37,11 @@ PpmOption = typer.Option(
     None, "--ppm", metavar="P",
     help="Receiver reference error in ppm (positive: runs fast, transmitters appear low). Corrects the "
          "capture's sample rate and centre, so every frequency tuned, measured or reported is true.",
+)
+IqCorrectOption = typer.Option(
+    False, "--iq-correct",
+    help="Estimate the IQ gain/phase imbalance and DC offset (a first pass over a file, a running estimate on "
+         "standard input) and remove them before any processing; reports record the correction.",
 )
 
 # -- output and terminal ------------------------------------------------------------------------
@@ -86,6 +92,8 @@ FLAGS: dict[str, str] = {
     "ppm": "--ppm",
     "reference_carrier": "--reference-carrier",
     "annotate": "--annotate",
+    "iq_correct": "--iq-correct",
+    "audio_format": "--audio-format",
 }
 """Python parameter name -> the flag that sets it."""
 

@@ -19,6 +19,7 @@ from .options import (
     FormatOption,
     JsonOption,
     NonfiniteOption,
+    IqCorrectOption,
     NoVerifyOption,
     OptStr,
     PpmOption,
@@ -81,6 +82,7 @@ def survey(
     annotate: OptStr = typer.Option(
         None, "--annotate", metavar="OUT.sigmf-meta",
         help="Write SigMF metadata of the same recording with one annotation per emission found."),
+    iq_correct: bool = IqCorrectOption,
 ) -> None:
     """Find the emissions in a capture: frequency, level, bandwidth, class; optionally write a channel plan."""
     from ..jobs import survey_file  # here, not at the top: `iqsift --help` stays fast
@@ -93,7 +95,7 @@ def survey(
             capture_path, threshold_db=threshold_db, raster=raster, plan_out=plan_out, resolution_hz=resolution_hz,
             start=start, duration=duration, allow_nonfinite=allow_nonfinite, force=force, progress=progress,
             format=format, rate=rate, center=center, strict=strict, verify=not no_verify, ppm=ppm,
-            reference_carrier=reference_carrier, annotate=annotate,
+            reference_carrier=reference_carrier, annotate=annotate, iq_correct=iq_correct,
         )
     report = result.to_dict()
     if json_out:
@@ -152,6 +154,7 @@ def format_survey(report: dict[str, Any]) -> str:
     ref = report.get("frequency_reference")
     if ref is not None:
         lines.append(f"reference  {format_reference(ref)}")
+    lines.extend(_iq_lines(report))
     emissions = report["emissions"]
     if not emissions:
         lines.append(f"emissions  none at {report['threshold_db']:g} dB above the floor")
@@ -173,6 +176,8 @@ def format_survey(report: dict[str, Any]) -> str:
             f"{e['peak_above_floor_db']:>8.1f}  {occ:>7.0f}Hz  {cls:<9} {e['designator']:<10} {channel:<10} "
             f"{e['confidence']}: {e['note']}"
         )
+    for e in report.get("images") or []:
+        lines.append(f"image      {_freq(e['frequency_hz'], has_centre)} ({e['level_dbfs']:.1f} dBFS): {e['note']}")
     if report.get("plan"):
         lines.append(f"plan       {report['plan']}")
     if report.get("annotations"):
@@ -188,6 +193,22 @@ def format_reference(ref: dict[str, Any]) -> str:
     state = "applied" if ref["applied"] else f"not applied: {ref.get('not_applied', '')}".replace("(ppm)", "(--ppm)")
     return (f"receiver error {ref['error_ppm']:+.3f} ppm (u = {ref['uncertainty_ppm']:.3f} ppm) from {used} of "
             f"{ref['carriers_considered']} carriers, {ref['method']}; {state}")
+
+
+def _iq_lines(report: dict[str, Any]) -> list[str]:
+    """The IQ correction applied and the image rejection, for people."""
+    lines = []
+    corr = (report.get("capture") or {}).get("iq_correction")
+    if corr:
+        lines.append(f"IQ         corrected ({corr['method']}): gain {corr['gain_imbalance_db']:+.3f} dB, "
+                     f"phase {corr['phase_imbalance_deg']:+.3f} deg, DC I {corr['dc_i']:+.5f} Q {corr['dc_q']:+.5f} "
+                     "removed")
+    irr = report.get("image_rejection_db")
+    if irr is not None and (corr or report.get("images")):
+        shown = ">90" if irr > 90 else f"{irr:.1f}"
+        lines.append(f"images     image rejection {shown} dB (IQ moments{', after correction' if corr else ''}); "
+                     f"{len(report.get('images') or [])} mirror image(s) left out")
+    return lines
 
 
 def _expected(value: float) -> str:

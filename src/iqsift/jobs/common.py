@@ -32,6 +32,7 @@ __all__ = [
     "nonfinite_policy",
     "opened",
     "stamped",
+    "with_iq_correction",
 ]
 
 CaptureArg: TypeAlias = Union[str, "os.PathLike[str]", Capture]
@@ -58,6 +59,7 @@ def opened(
     strict: bool = False,
     verify: bool = True,
     ppm: float | None = None,
+    iq_correct: bool = False,
 ) -> Iterator[Capture]:
     """The capture, opened here (and closed on exit) when given as a path; as it is when already open.
 
@@ -66,6 +68,8 @@ def opened(
     With ``ppm`` the capture is read as made by a receiver whose reference ran ``ppm`` parts per million
     fast (:meth:`~iqsift.captures.Capture.correct_reference`): its rate and centre are the true ones;
     an already opened capture gets its own correction back on exit.
+    With ``iq_correct`` the IQ gain and phase imbalance and the DC offset are estimated and removed
+    from every block read (:func:`with_iq_correction`).
 
     Raises
     ------
@@ -77,14 +81,16 @@ def opened(
         given = [name for name, value in (("format", format), ("rate", rate), ("center", center)) if value is not None]
         if given:
             raise ParameterError(f"{', '.join(given)}: only for a capture given by path; {capture.path} is already open")
-        own_setting, own_ppm = capture.verify, capture.reference_ppm
+        own_setting, own_ppm, own_correction = capture.verify, capture.reference_ppm, capture.correction
         capture.verify = own_setting and verify
         try:
             if ppm is not None:
                 capture.correct_reference(ppm)
+            if iq_correct:
+                with_iq_correction(capture)
             yield capture
         finally:
-            capture.verify = own_setting
+            capture.verify, capture.correction = own_setting, own_correction
             if capture.reference_ppm != own_ppm:  # a job may correct it further (survey's estimate)
                 capture.correct_reference(own_ppm)
         return
@@ -92,6 +98,8 @@ def opened(
                       verify=verify) as opened_capture:
         if ppm is not None:
             opened_capture.correct_reference(ppm)
+        if iq_correct:
+            with_iq_correction(opened_capture)
         yield opened_capture
 
 
@@ -108,6 +116,32 @@ def audio_file_rate(rate_hz: float) -> float:
     """
     whole = round(rate_hz)
     return float(whole) if whole > 0 and abs(rate_hz / whole - 1.0) <= MAX_PPM * 1e-6 else rate_hz
+
+
+def with_iq_correction(capture: Capture) -> Capture:
+    """Make ``capture`` remove its IQ imbalance and DC offset from every block it hands out.
+
+    A file gets a first pass over the whole capture (one fixed correction, so every block and
+    every part selected later is corrected alike); standard input, which cannot be read twice, a
+    running estimate (:mod:`iqsift.captures.iqcorrect`).
+
+    Raises
+    ------
+    ParameterError
+        For a real-valued capture (it has no Q path to be out of balance).
+    """
+    from ..captures.iqcorrect import RunningCorrection, estimate_correction
+    from ..captures.stream import StreamCapture
+
+    if not capture.is_complex:
+        raise ParameterError(f"iq_correct: {capture.path} is real-valued (datatype {capture.datatype}); "
+                             "IQ imbalance applies to complex captures only")
+    capture.correction = None
+    if isinstance(capture, StreamCapture):
+        capture.correction = RunningCorrection()
+    else:
+        capture.correction = estimate_correction(capture.blocks(nonfinite="zero"), capture.clip_high)
+    return capture
 
 
 def check_plot_format(plot_format: str) -> str:
@@ -157,6 +191,8 @@ class CaptureSummary:
         segments' and annotations' frequencies are the corrected (true) ones.
     nominal_sample_rate_hz : float
         The sample rate the file states.
+    iq_correction : dict or None
+        The IQ imbalance and DC correction applied (``iq_correct``), None when none was.
     """
 
     path: str
@@ -171,6 +207,7 @@ class CaptureSummary:
     annotations: tuple[Mapping[str, Any], ...]
     reference_ppm: float = 0.0
     nominal_sample_rate_hz: float | None = None
+    iq_correction: Mapping[str, Any] | None = None
 
     @classmethod
     def of(cls, capture: Capture) -> "CaptureSummary":
@@ -188,6 +225,7 @@ class CaptureSummary:
             annotations=tuple(a.as_dict() for a in capture.annotations),
             reference_ppm=capture.reference_ppm,
             nominal_sample_rate_hz=capture.nominal_sample_rate_hz,
+            iq_correction=None if capture.correction is None else capture.correction.to_dict(),
         )
 
     def to_dict(self) -> dict[str, Any]:
@@ -208,6 +246,7 @@ class CaptureSummary:
                 "nominal_sample_rate_hz": (self.sample_rate_hz if self.nominal_sample_rate_hz is None
                                            else self.nominal_sample_rate_hz),
             },
+            "iq_correction": None if self.iq_correction is None else dict(self.iq_correction),
         }
 
 
@@ -223,7 +262,8 @@ class SelectionSummary:
     @classmethod
     def of(cls, capture: Capture, selection: SampleRange) -> "SelectionSummary":
         rate = capture.sample_rate_hz
-        return cls(selection.start / rate, selection.count / rate, selection.start, selection.count)
+        count = min(selection.count, capture.samples - selection.start)  # a stream's length is known at its end
+        return cls(selection.start / rate, count / rate, selection.start, count)
 
     def to_dict(self) -> dict[str, Any]:
         return {"start_s": self.start_s, "duration_s": self.duration_s,

@@ -9,7 +9,9 @@ from pathlib import Path
 from typing import Any
 
 from ..captures import AudioWriter, OutputSet, annotated_metadata, check_annotation_path
+from ..captures.audio_stream import StreamAudioWriter
 from ..channel import Channel
+from ..errors import ParameterError
 from ..jsonable import dumps
 from ..receiver import Receiver, ReceiverReport
 from .annotations import activity_annotations
@@ -113,6 +115,8 @@ def demod_file(
     verify: bool = True,
     ppm: float | None = None,
     annotate: str | os.PathLike[str] | None = None,
+    iq_correct: bool = False,
+    audio_format: str = "wav",
 ) -> DemodResult:
     """Demodulate one channel of a capture to a WAV/FLAC file.
 
@@ -127,7 +131,8 @@ def demod_file(
     channel : Channel
         What to receive (see :func:`iqsift.make_channel`).
     output : path
-        Audio file, ``.wav`` or ``.flac`` (16-bit).
+        Audio file, ``.wav`` or ``.flac`` (16-bit); ``"-"``: standard output, each block as soon as it
+        is made (:class:`~iqsift.captures.audio_stream.StreamAudioWriter`).
     baseband : path, optional
         Also write the channel baseband as SigMF (cf32_le at the channel rate).
     report : path, optional
@@ -161,11 +166,20 @@ def demod_file(
         Write SigMF metadata of the same recording (``.sigmf-meta``, in the data file's folder) with one
         annotation per activity segment of the channel. The channel is then measured as by
         :func:`~iqsift.jobs.measure_file` (activity needs it), and the report carries those sections.
+    audio_format : {"wav", "s16"}
+        With ``output="-"``: a WAV stream of unknown length, or raw 16-bit little-endian samples.
+    iq_correct : bool
+        Estimate the IQ gain and phase imbalance and the DC offset (a first pass over a file, a
+        running estimate on standard input) and remove them before any processing; the report's
+        ``capture.iq_correction`` records what was removed.
     """
     check_plot_format(plot_format)
+    if audio_format != "wav" and str(output) != "-":
+        raise ParameterError(f"audio_format: {audio_format!r} is for audio on standard output (output '-'); "
+                             f"{output} takes its format from its extension")
     started = time.perf_counter()
     with opened(capture, format=format, rate=rate, center=center, strict=strict,
-                verify=verify, ppm=ppm) as cap:
+                verify=verify, ppm=ppm, iq_correct=iq_correct) as cap:
         selection = cap.select(start, duration)
         receiver = Receiver.for_capture(cap, channel, selection, engine=engine, agc=agc, spectra=bool(spectra))
         if annotate:
@@ -178,7 +192,11 @@ def demod_file(
             check_stage_plot_folder(spectra_dir, plot_format, force)  # before any work
             keeper = AudioKeeper.attach(receiver)
         with OutputSet(force=force, protect=cap.files) as outputs:
-            audio_writer = AudioWriter(output, audio_file_rate(receiver.audio_rate_hz), outputs=outputs)
+            audio_writer: AudioWriter | StreamAudioWriter
+            if str(output) == "-":
+                audio_writer = StreamAudioWriter(receiver.audio_rate_hz, audio_format)
+            else:
+                audio_writer = AudioWriter(output, audio_file_rate(receiver.audio_rate_hz), outputs=outputs)
             report_tmp = outputs.reserve(report) if report else None
             annotate_tmp = outputs.reserve(check_annotation_path(cap, annotate)) if annotate else None
             bb_writer = None

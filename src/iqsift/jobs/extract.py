@@ -136,6 +136,7 @@ def extract_file(
     verify: bool = True,
     ppm: float | None = None,
     annotate: str | os.PathLike[str] | None = None,
+    iq_correct: bool = False,
 ) -> ExtractResult:
     """Extract every channel of a plan in one pass: ``<name>.wav`` per channel and ``report.json``.
 
@@ -171,7 +172,7 @@ def extract_file(
     if folder.exists() and not folder.is_dir():
         raise ParameterError(f"out_dir {folder}: exists and is not a folder", parameters=("out_dir",))
     with opened(capture, format=format, rate=rate, center=center, strict=strict,
-                verify=verify, ppm=ppm if ppm is not None else plan_obj.ppm) as cap:
+                verify=verify, ppm=ppm if ppm is not None else plan_obj.ppm, iq_correct=iq_correct) as cap:
         selection = cap.select(start, duration)
         extractor = Extractor.from_plan(cap, plan_obj, selection=selection, spectra=spectra)
         parent = folder.parent if str(folder.parent) else Path(".")

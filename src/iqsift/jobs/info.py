@@ -35,6 +35,7 @@ def info_file(
     progress: Progress | None = None,
     verify: bool = True,
     ppm: float | None = None,
+    iq_correct: bool = False,
 ) -> InfoResult:
     """Describe a capture and measure it in one pass (NaN/Inf samples are counted, not refused).
 
@@ -51,8 +52,13 @@ def info_file(
         raises :class:`~iqsift.captures.ChecksumError`.
     ppm : float, optional
         Receiver reference error (ppm) to correct for (see :func:`demod_file`).
+    iq_correct : bool
+        Remove the IQ imbalance and DC offset (a first pass over a file, a running estimate on
+        standard input) before measuring: the statistics then describe the corrected samples, and
+        ``iq_correction`` what was removed.
     """
-    with opened(capture, format=format, rate=rate, center=center, strict=strict, verify=verify, ppm=ppm) as cap:
+    with opened(capture, format=format, rate=rate, center=center, strict=strict, verify=verify,
+                ppm=ppm, iq_correct=iq_correct) as cap:
         acc = StatsAccumulator(cap.is_complex, cap.clip_high)
         for block in counted(cap.blocks(nonfinite="keep"), cap.samples, progress):
             acc.update(block)

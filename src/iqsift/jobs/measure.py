@@ -66,6 +66,7 @@ def measure_file(
     strict: bool = False,
     verify: bool = True,
     ppm: float | None = None,
+    iq_correct: bool = False,
 ) -> MeasureResult:
     """Measure one channel of a capture; writes nothing.
 
@@ -87,7 +88,7 @@ def measure_file(
         As for :func:`demod_file`.
     """
     with opened(capture, format=format, rate=rate, center=center, strict=strict,
-                verify=verify, ppm=ppm) as cap:
+                verify=verify, ppm=ppm, iq_correct=iq_correct) as cap:
         selection = cap.select(start, duration)
         receiver = Receiver.for_capture(cap, channel, selection, agc=False).analyze(
             tone_hz=tone_hz, weighting=weighting, x_db=x_db, activity={"threshold_db": threshold_db},

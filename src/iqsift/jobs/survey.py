@@ -98,6 +98,7 @@ def survey_file(
     ppm: float | None = None,
     reference_carrier: str | float | None = None,
     annotate: str | os.PathLike[str] | None = None,
+    iq_correct: bool = False,
 ) -> SurveyReport:
     """Survey a capture in one streaming pass.
 
@@ -125,6 +126,9 @@ def survey_file(
         Write SigMF metadata of the same recording (``.sigmf-meta``, in the data file's folder) with one
         annotation per emission (:func:`~iqsift.jobs.annotations.emission_annotations`).
     """
+    if isinstance(capture, str) and capture == "-":
+        raise ParameterError("survey: needs a capture file; standard input (-) has no known length to choose the "
+                             "resolution from (use info, demod, measure or extract on a live stream)")
     raster_obj = parse_raster(raster) if isinstance(raster, str) else raster
     reference_hz = (None if reference_carrier is None
                     else parse_positive_hz(reference_carrier, "reference_carrier"))
@@ -132,7 +136,7 @@ def survey_file(
     with OutputSet(force=force, protect=protect) as outputs:
         plan_tmp = outputs.reserve(plan_out) if plan_out else None  # checked before any work
         with opened(capture, format=format, rate=rate, center=center, strict=strict,
-                    verify=verify, ppm=ppm) as cap:
+                    verify=verify, ppm=ppm, iq_correct=iq_correct) as cap:
             annotate_tmp = outputs.reserve(check_annotation_path(cap, annotate)) if annotate else None
             selection = cap.select(start, duration)
             if raster_obj is not None and cap.center_for(selection) is None:

@@ -6,7 +6,7 @@ Both are frozen dataclasses with a ``to_dict()`` JSON view whose keys are stable
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
@@ -76,6 +76,9 @@ class DetectedEmission:
         Why a raster was asked for and the carrier was not snapped (it keeps its
         measured frequency): the raster is not for its class, the nearest point is
         beyond the tolerance, or a nearer emission took that point.
+    image_of : int or None
+        For a mirror image (:mod:`iqsift.survey.images`): the index of the emission it
+        mirrors; None for an emission of its own.
     """
 
     index: int
@@ -105,6 +108,7 @@ class DetectedEmission:
     channel_name: str | None = None
     raster_tolerance_hz: float | None = None
     raster_reason: str | None = None
+    image_of: int | None = None
 
     @property
     def nominal_frequency_hz(self) -> float:
@@ -124,7 +128,9 @@ class DetectedEmission:
                 "error_hz": self.raster_error_hz,
                 "tolerance_hz": self.raster_tolerance_hz,
             }
-        reason = {} if self.raster_reason is None else {"raster_reason": self.raster_reason}
+        reason: dict[str, Any] = {} if self.raster_reason is None else {"raster_reason": self.raster_reason}
+        if self.image_of is not None:
+            reason["image_of"] = self.image_of
         return {
             "index": self.index,
             "frequency_hz": self.frequency_hz,
@@ -197,6 +203,12 @@ class SurveyResult:
     raster_rule : dict or None
         The raster's snapping rule (:func:`iqsift.survey.snapping.raster_rule`): name,
         step, tolerance (Hz), emission classes it is for, description.
+    images : list of DetectedEmission
+        Mirror images of emissions through the IQ imbalance (``image_of`` set), left out of
+        ``emissions`` and of the plan (:mod:`iqsift.survey.images`).
+    image_rejection_db : float or None
+        The capture's image rejection ratio estimated from its IQ moments (dB); None for a real
+        capture or when no imbalance is measurable.
     """
 
     emissions: list[DetectedEmission]
@@ -217,6 +229,8 @@ class SurveyResult:
     raster: str | None = None
     floor_range_dbfs_per_hz: tuple[float, float] = (float("nan"), float("nan"))
     raster_rule: dict[str, Any] | None = None
+    images: list[DetectedEmission] = field(default_factory=list)
+    image_rejection_db: float | None = None
 
     def to_dict(self) -> dict[str, Any]:
         """JSON-ready view (spectra summarised, not listed bin by bin)."""
@@ -248,4 +262,6 @@ class SurveyResult:
             "raster": self.raster,
             **({} if self.raster_rule is None else {"raster_rule": self.raster_rule}),
             "emissions": [e.to_dict() for e in self.emissions],
+            "image_rejection_db": self.image_rejection_db,
+            "images": [e.to_dict() for e in self.images],
         }

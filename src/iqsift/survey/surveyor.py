@@ -15,12 +15,14 @@ from typing import Any, Callable, Iterable, Iterator
 
 import numpy as np
 
+from ..captures.stats import StatsAccumulator
 from ..errors import ParameterError
 from ..rasters import Raster, parse_raster
 from ..reference import check_ppm, reference_factor
 from ..spectra import Spectrum, WelchAccumulator
 from .analysis import analyse_spectra
 from .formulas import welch_dof
+from .images import split_images
 from .results import SurveyResult
 
 __all__ = [
@@ -218,6 +220,7 @@ class Surveyor:
         )
         self._sum = 0j
         self._count = 0
+        self._moments = StatsAccumulator(True)  # the IQ imbalance, for telling mirror images
 
     @property
     def nperseg(self) -> int:
@@ -251,6 +254,7 @@ class Surveyor:
             self._fine.reset()
         self._sum = 0j
         self._count = 0
+        self._moments = StatsAccumulator(True)
 
     def feed(self, block: Any) -> "Surveyor":
         """Add a block of samples (complex64 from :meth:`Capture.blocks`, or real)."""
@@ -266,6 +270,8 @@ class Surveyor:
             self._fine.feed(x)
         self._sum += complex(np.sum(x, dtype=np.complex128))
         self._count += x.size
+        if self.is_complex:
+            self._moments.update(x)
         return self
 
     __call__ = feed
@@ -308,7 +314,10 @@ class Surveyor:
                 view.center_hz = None if self.center_hz is None else self.center_hz * k
                 spec = _rescaled(spec, k)
                 fine = None if fine is None else _rescaled(fine, k)
-        return analyse_spectra(view, spec, fine, dof, fine_dof)
+        found = analyse_spectra(view, spec, fine, dof, fine_dof)
+        irr_db = self._moments.result().image_rejection_db if self.is_complex else None
+        emissions, images = split_images(found.emissions, irr_db, spec.bin_width_hz)
+        return dataclasses.replace(found, emissions=emissions, images=images, image_rejection_db=irr_db)
 
 
 def _rescaled(spectrum: Spectrum, k: float) -> Spectrum:
