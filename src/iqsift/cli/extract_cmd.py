@@ -12,6 +12,7 @@ from .options import (
     DurationOption,
     ForceOption,
     FormatOption,
+    HtmlOption,
     JsonOption,
     NonfiniteOption,
     NoVerifyOption,
@@ -32,6 +33,7 @@ def extract_command(
     spectra: bool = typer.Option(False, "--spectra", help="Also write stage spectra plots per channel."),
     plot_format: str = PlotFormatOption,
     baseband: bool = typer.Option(False, "--baseband", help="Also write each channel's baseband as SigMF."),
+    html: bool = HtmlOption,
     start: OptStr = StartOption,
     duration: OptStr = DurationOption,
     allow_nonfinite: bool = NonfiniteOption,
@@ -49,7 +51,7 @@ def extract_command(
 
     with ProgressBar("extract", quiet) as progress:
         result = extract_file(
-            capture_path, plan_path, out_dir, spectra=spectra, plot_format=plot_format, baseband=baseband,
+            capture_path, plan_path, out_dir, spectra=spectra, plot_format=plot_format, baseband=baseband, html=html,
             start=start, duration=duration, allow_nonfinite=allow_nonfinite, force=force, progress=progress,
             format=format, rate=rate, center=center, strict=strict, verify=not no_verify,
         ).to_dict()
@@ -77,4 +79,6 @@ def format_extract(result: dict) -> str:
             f"{'-' if err is None else f'{err:+.2f}':>15} {len(ch.get('activity') or []):>7}  {ch['outputs']['audio']}"
         )
     lines.append(f"report: {result['outputs']['report']}")
+    if result["outputs"].get("html"):
+        lines.append(f"page:   {result['outputs']['html']}")
     return "\n".join(lines)
