@@ -74,7 +74,7 @@ def plot_activity_timeline(
                                                               PALETTE["envelope"]])
     norm = Normalize(lo, hi)
     n = len(rows)
-    rc = {"svg.hashsalt": "iqsift", "svg.fonttype": "path", "font.size": 10, "axes.spines.top": False,
+    rc: dict[str, Any] = {"svg.hashsalt": "iqsift", "svg.fonttype": "path", "font.size": 10, "axes.spines.top": False,
           "axes.spines.right": False, "figure.facecolor": PALETTE["face"], "savefig.facecolor": PALETTE["face"],
           "text.color": PALETTE["text"], "axes.labelcolor": PALETTE["text"]}
     with matplotlib.rc_context(rc):

@@ -76,7 +76,10 @@ def _anchor(name: str) -> str:
 def _num(value: Any, fmt: str, unit: str = "") -> str:
     if value is None:
         return "—"
-    return f"{value:{fmt}}{unit}"
+    text = f"{value:{fmt}}"
+    if text.lstrip("+-").strip("0.") == "":  # no "-0.0": a value that rounds to zero shows unsigned
+        text = f"{0.0:{fmt.lstrip('+')}}"
+    return text + unit
 
 
 def _frequency(ch: Mapping[str, Any]) -> str:
