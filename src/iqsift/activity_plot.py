@@ -74,10 +74,11 @@ def plot_activity_timeline(
                                                               PALETTE["envelope"]])
     norm = Normalize(lo, hi)
     n = len(rows)
-    rc: dict[str, Any] = {"svg.hashsalt": "iqsift", "svg.fonttype": "path", "font.size": 10, "axes.spines.top": False,
-          "axes.spines.right": False, "figure.facecolor": PALETTE["face"], "savefig.facecolor": PALETTE["face"],
-          "text.color": PALETTE["text"], "axes.labelcolor": PALETTE["text"]}
-    with matplotlib.rc_context(rc):
+    with matplotlib.rc_context({
+        "svg.hashsalt": "iqsift", "svg.fonttype": "path", "font.size": 10, "axes.spines.top": False,
+        "axes.spines.right": False, "figure.facecolor": PALETTE["face"], "savefig.facecolor": PALETTE["face"],
+        "text.color": PALETTE["text"], "axes.labelcolor": PALETTE["text"],
+    }):
         fig = Figure(figsize=(10.0, 1.5 + 0.42 * n), layout="constrained")
         ax = fig.add_subplot()
         for i, (label, segs) in enumerate(rows):
