@@ -171,6 +171,17 @@ def test_demod_html_cli(tmp_path, run_cli):
     assert "upper.json" in [a["href"] for t, a in reader.tags if t == "a"]
 
 
+def test_demod_html_with_report_elsewhere_names_it_without_a_link(tmp_path, run_cli):
+    (tmp_path / "audio").mkdir()
+    (tmp_path / "json").mkdir()
+    status, out, err = run_cli(
+        "demod", SAMPLES / "hf_segment.sigmf-meta", "--freq", "7.162M", "--emission", "2K70J3E", "--duration", "0.5s",
+        "-o", tmp_path / "audio" / "u.wav", "--report", tmp_path / "json" / "u.json", "--html", "--quiet")
+    assert status == 0, err
+    reader = check_references(tmp_path / "audio" / "report.html")  # every link still inside the folder
+    assert str(tmp_path / "json" / "u.json") in "".join(reader.text)
+
+
 def test_timeline_svg_is_byte_reproducible(tmp_path):
     from iqsift.activity_plot import plot_activity_timeline
 

@@ -48,7 +48,7 @@ class PageChannel:
     overview : str or None
         Its stage-spectra overview figure, relative to the page.
     links : sequence of (label, relative path)
-        Its JSON files.
+        Its JSON files (inside the page's folder; files elsewhere are named in the page's footer).
     """
 
     report: Mapping[str, Any]
@@ -141,7 +141,7 @@ def _channel_section(pc: PageChannel, duration_s: float) -> str:
         parts.append(
             f'<figure><img src="{_href(pc.overview)}" alt="Stage spectra of {escape(pc.name)}: the input around '
             f'the channel, the channel baseband, the detector output and the audio, stacked in chain order" '
-            f'loading="lazy"><figcaption>Spectrum at each stage of the receiver chain, input at the top.'
+            f'><figcaption>Spectrum at each stage of the receiver chain, input at the top.'
             "</figcaption></figure>")
     if pc.links:
         items = "".join(f'<li><a href="{_href(path)}">{escape(label)}</a></li>' for label, path in pc.links)
@@ -195,6 +195,7 @@ def render_report_page(
     timeline: str | None,
     duration_s: float,
     report_json: str | None = None,
+    elsewhere: str | None = None,
 ) -> str:
     """The whole page as text.
 
@@ -211,6 +212,8 @@ def render_report_page(
         The processed duration (s), for the activity shares.
     report_json : str, optional
         The run's whole JSON report, relative to the page.
+    elsewhere : str, optional
+        The JSON report when it lies outside the page's folder: named as text, not linked.
     """
     notes = sorted({str(pc.report["audio_reason"]) for pc in channels if pc.report.get("audio_reason")})
     head = ("Channel", "Frequency", "Mode", "Level", "Carrier error", "Depth", "SNR", "Active")
@@ -242,6 +245,8 @@ def render_report_page(
     foot = f"Written by iqsift {escape(__version__)}."
     if report_json:
         foot += f' All numbers: <a href="{_href(report_json)}">{escape(report_json)}</a>.'
+    elif elsewhere:
+        foot += f" All numbers: {escape(elsewhere)} (outside this folder, not linked)."
     body.append(f"<footer>{foot}</footer>")
     return ("<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n"
             '<meta name="viewport" content="width=device-width, initial-scale=1">\n'
@@ -298,6 +303,8 @@ def write_html_report(
 
     folder = Path(folder)
     paths = report_file_paths(folder, stems, fmt)
+    inside = report_json is not None and Path(folder).absolute() in Path(report_json).absolute().parents
+    json_rel = _rel(report_json, folder) if inside and report_json is not None else None
     outputs.make_folder(folder / FIGURE_FOLDER)
     written: list[Path] = []
     channels = []
@@ -305,8 +312,8 @@ def write_html_report(
         made = write_overview(rx, fig, capture_name=capture_name, fmt=fmt, data_path=data, outputs=outputs)
         written += made
         links = [("stage spectra data (JSON)", _rel(data, folder))] if made else []
-        if report_json is not None:
-            links.insert(0, ("report (JSON, all channels)", _rel(report_json, folder)))
+        if json_rel is not None:
+            links.insert(0, ("report (JSON)", json_rel))
         channels.append(PageChannel(report=report, audio=_rel(audio, folder),
                                     overview=_rel(fig, folder) if made else None, links=links))
     rows = [(pc.name, [(s["start_s"], s["end_s"], s.get("level_dbfs")) for s in pc.report.get("activity") or []])
@@ -317,7 +324,7 @@ def write_html_report(
     page = render_report_page(
         title=f"iqsift report: {capture_name}", summary=summary, channels=channels,
         timeline=_rel(paths["timeline"], folder), duration_s=duration_s,
-        report_json=None if report_json is None else _rel(report_json, folder))
+        report_json=json_rel, elsewhere=None if inside or report_json is None else str(report_json))
     outputs.reserve(paths["html"]).write_text(page, encoding="utf-8")
     written.append(paths["html"])
     return written
