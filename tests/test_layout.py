@@ -17,8 +17,9 @@ LAYERS: list[tuple[str, ...]] = [
      "iqsift.reference"),
     ("iqsift.emission", "iqsift.channel", "iqsift.rasters", "iqsift.plan", "iqsift.captures", "iqsift.dsp",
      "iqsift.spectra", "iqsift.schemas"),
-    ("iqsift.measure", "iqsift.receiver", "iqsift.survey", "iqsift.synth", "iqsift.plots"),
-    ("iqsift.extractor", "iqsift.stage_plots"),
+    ("iqsift.measure", "iqsift.receiver", "iqsift.survey", "iqsift.synth", "iqsift.plots",
+     "iqsift.activity_plot"),
+    ("iqsift.extractor", "iqsift.stage_plots", "iqsift.html_report"),
     ("iqsift.jobs",),
     ("iqsift.cli", "iqsift.demo", "iqsift.__main__"),
 ]

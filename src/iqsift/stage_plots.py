@@ -235,3 +235,37 @@ def _around_channel(spectrum, receiver):
     if keep.sum() < 16:
         return spectrum
     return dataclasses.replace(spectrum, freqs_hz=f[keep], values_db=np.asarray(spectrum.values_db)[keep])
+
+
+def write_overview(receiver, path: Path, *, capture_name: str, fmt: str = "png", data_path: Path | None = None,
+                   outputs=None) -> list[Path]:
+    """Only the overview figure (every stage's spectrum stacked), and optionally the data behind it as JSON.
+
+    For the HTML report, which shows the overview whether or not the full ``--spectra`` set is
+    written. Same figure as :func:`write_stage_plots` draws; returns the final paths written
+    (none when the receiver accumulated no spectra).
+    """
+    from . import plots
+
+    spectra = receiver.spectra("density")
+    if not spectra:
+        return []
+    ch = receiver.channel
+    title = f"{capture_name}: {ch.name} ({ch.mode}, {ch.bandwidth_hz:g} Hz)"
+    extras = stage_overlays(receiver)
+    if "input" in spectra:
+        spectra["input"] = _around_channel(spectra["input"], receiver)
+    stage_names = sorted((n for n in spectra if n.startswith("stage")), key=lambda n: int(n[5:]))
+    order = [n for n in ("input", *stage_names, "channel", "detector", "audio") if n in spectra]
+
+    def target(final: Path) -> Path:
+        return outputs.reserve(final) if outputs is not None else final
+
+    plots.plot_overview([spectra[n] for n in order], target(Path(path)), title=title,
+                        overlays=[extras["overlays"].get(n) for n in order],
+                        channel_band=[extras["bands"].get(n) for n in order], fmt=fmt)
+    written = [Path(path)]
+    if data_path is not None:
+        plots.save_plot_data({"stages": [spectra[n] for n in order]}, target(Path(data_path)))
+        written.append(Path(data_path))
+    return written

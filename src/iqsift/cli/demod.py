@@ -23,6 +23,7 @@ from .options import (
     ForceOption,
     FormatOption,
     FreqOption,
+    HtmlOption,
     JsonOption,
     ModeOption,
     NonfiniteOption,
@@ -59,6 +60,7 @@ def demod(
     report: OptStr = typer.Option(None, "--report", help="Also write the JSON report to this file."),
     spectra: OptStr = typer.Option(None, "--spectra", help="Write stage spectra plots and their data into this folder."),
     plot_format: str = PlotFormatOption,
+    html: bool = HtmlOption,
     engine: str = EngineOption,
     agc: Optional[bool] = AgcOption,
     squelch: Optional[float] = typer.Option(None, "--squelch", help="Mute audio while the channel is less than this many dB above its noise floor."),
@@ -91,7 +93,7 @@ def demod(
     with ProgressBar("demod", live_input(capture_path) or quiet) as progress:
         result = demod_file(
             capture_path, channel, output, baseband=baseband, report=report, spectra=spectra,
-            plot_format=plot_format, engine=engine, agc=agc, start=start, duration=duration,
+            plot_format=plot_format, html=html, engine=engine, agc=agc, start=start, duration=duration,
             allow_nonfinite=allow_nonfinite, force=force, progress=progress,
             format=format, rate=rate, center=center, strict=strict, verify=not no_verify, ppm=ppm,
             annotate=annotate, iq_correct=iq_correct, audio_format=audio_format,
@@ -127,4 +129,6 @@ def format_demod(result: dict) -> str:
     ref = reference_text(result.get("capture") or {})
     if ref:
         lines.append(f"reference  {ref}")
+    if result["outputs"].get("html"):
+        lines.append(f"page       {result['outputs']['html']}")
     return "\n".join(lines)

@@ -14,6 +14,7 @@ from .options import (
     DurationOption,
     ForceOption,
     FormatOption,
+    HtmlOption,
     JsonOption,
     NonfiniteOption,
     IqCorrectOption,
@@ -36,6 +37,7 @@ def extract_command(
     spectra: bool = typer.Option(False, "--spectra", help="Also write stage spectra plots per channel."),
     plot_format: str = PlotFormatOption,
     baseband: bool = typer.Option(False, "--baseband", help="Also write each channel's baseband as SigMF."),
+    html: bool = HtmlOption,
     start: OptStr = StartOption,
     duration: OptStr = DurationOption,
     allow_nonfinite: bool = NonfiniteOption,
@@ -59,7 +61,7 @@ def extract_command(
 
     with ProgressBar("extract", live_input(capture_path) or quiet) as progress:
         result = extract_file(
-            capture_path, plan_path, out_dir, spectra=spectra, plot_format=plot_format, baseband=baseband,
+            capture_path, plan_path, out_dir, spectra=spectra, plot_format=plot_format, baseband=baseband, html=html,
             start=start, duration=duration, allow_nonfinite=allow_nonfinite, force=force, progress=progress,
             format=format, rate=rate, center=center, strict=strict, verify=not no_verify, ppm=ppm,
             annotate=annotate, iq_correct=iq_correct,
@@ -96,4 +98,6 @@ def format_extract(result: dict) -> str:
     ref = reference_text(result["capture"])
     if ref:
         lines.append(f"reference: {ref}")
+    if result["outputs"].get("html"):
+        lines.append(f"page:   {result['outputs']['html']}")
     return "\n".join(lines)

@@ -49,6 +49,7 @@ JsonOption = typer.Option(False, "--json", help="Print a machine-readable JSON r
 QuietOption = typer.Option(False, "--quiet", "-q", help="No progress bar.")
 ForceOption = typer.Option(False, "--force", help="Overwrite existing output files.")
 PlotFormatOption = typer.Option("png", "--plot-format", help="Plot file format: png or svg.")
+HtmlOption = typer.Option(False, "--html", help="Also write report.html: channel table, activity timeline, audio players, stage spectra.")
 
 # -- the channel --------------------------------------------------------------------------------
 FreqOption = typer.Option(None, "--freq", help="Carrier frequency in Hz, absolute (e.g. 127.35M).")

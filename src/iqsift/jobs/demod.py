@@ -42,6 +42,7 @@ class DemodOutputs:
     spectra: str | None = None
     spectra_files: tuple[str, ...] | None = None
     annotations: str | None = None
+    html: str | None = None
 
     def to_dict(self) -> dict[str, Any]:
         out: dict[str, Any] = {"audio": self.audio, "baseband": self.baseband, "report": self.report,
@@ -50,6 +51,8 @@ class DemodOutputs:
             out["spectra_files"] = list(self.spectra_files)
         if self.annotations is not None:
             out["annotations"] = self.annotations
+        if self.html is not None:
+            out["html"] = self.html
         return out
 
 
@@ -101,6 +104,7 @@ def demod_file(
     report: str | os.PathLike[str] | None = None,
     spectra: str | os.PathLike[str] | None = None,
     plot_format: str = "png",
+    html: bool = False,
     engine: str = "fft",
     agc: bool | None = None,
     start: str | float | None = None,
@@ -141,6 +145,10 @@ def demod_file(
         Folder for stage spectra plots and their data.
     plot_format : {"png", "svg"}
         Plot file format.
+    html : bool
+        Also write ``report.html`` in the audio file's folder (:mod:`iqsift.html_report`): the channel's
+        table row, activity timeline, audio player, stage-spectra overview (figures under
+        ``report_files/``) and links to its JSON (the ``report`` file, when given).
     engine : {"fft", "polyphase"}
         Front end (see :class:`iqsift.Receiver`).
     agc : bool, optional
@@ -181,7 +189,7 @@ def demod_file(
     with opened(capture, format=format, rate=rate, center=center, strict=strict,
                 verify=verify, ppm=ppm, iq_correct=iq_correct) as cap:
         selection = cap.select(start, duration)
-        receiver = Receiver.for_capture(cap, channel, selection, engine=engine, agc=agc, spectra=bool(spectra))
+        receiver = Receiver.for_capture(cap, channel, selection, engine=engine, agc=agc, spectra=bool(spectra) or html)
         if annotate:
             receiver.analyze(time_offset_s=selection.start / cap.sample_rate_hz)  # activity in capture time
         spectra_dir = Path(spectra) if spectra else None
@@ -191,6 +199,12 @@ def demod_file(
 
             check_stage_plot_folder(spectra_dir, plot_format, force)  # before any work
             keeper = AudioKeeper.attach(receiver)
+        html_folder = Path(output).parent
+        stem = Path(output).stem
+        if html:
+            from ..html_report import check_report_files
+
+            check_report_files(html_folder, [stem], plot_format, force, cap.files)  # before any work
         with OutputSet(force=force, protect=cap.files) as outputs:
             audio_writer: AudioWriter | StreamAudioWriter
             if str(output) == "-":
@@ -227,6 +241,10 @@ def demod_file(
                 spectra_files = tuple(str(p) for p in write_stage_plots(
                     receiver, spectra_dir, capture_name=cap.path.name, fmt=plot_format, outputs=outputs,
                     audio=None if keeper is None else keeper.audio()))
+            html_path = None
+            if html:
+                html_path = _write_html(receiver, cap, selection, html_folder, stem, output, report, rx_report,
+                                        outputs, plot_format)
             result = DemodResult(
                 receiver=rx_report,
                 capture=CaptureSummary.of(cap),
@@ -235,10 +253,32 @@ def demod_file(
                     audio=str(output), baseband=None if baseband is None else str(baseband),
                     report=None if report is None else str(report),
                     spectra=None if spectra_dir is None else str(spectra_dir), spectra_files=spectra_files,
-                    annotations=None if annotate is None else str(annotate)),
+                    annotations=None if annotate is None else str(annotate),
+                    html=None if html_path is None else str(html_path)),
                 audio_clipped_samples=audio_writer.clipped_samples,
                 elapsed_s=elapsed_s,
             )
             if report_tmp is not None:
                 report_tmp.write_text(dumps(result.to_dict()))
     return result
+
+
+def _write_html(receiver: Receiver, cap: Any, selection: Any, folder: Path, stem: str, output: Any, report: Any,
+                rx_report: ReceiverReport, outputs: OutputSet, plot_format: str) -> Path:
+    """``report.html`` of one channel, beside its audio, in the run's OutputSet."""
+    from ..html_report import write_html_report
+    from ..units import format_hz
+
+    sel = SelectionSummary.of(cap, selection).to_dict()
+    summary = [
+        ("Capture", str(cap.path)),
+        ("Centre, rate", f"{format_hz(receiver.center_hz)}, {cap.sample_rate_hz:g} S/s"),
+        ("Processed", f"{sel['start_s']:.3f} s to {sel['start_s'] + sel['duration_s']:.3f} s "
+                      f"({sel['duration_s']:.3f} s)"),
+        ("Engine", str(receiver.design.engine)),
+    ]
+    write_html_report(
+        folder, receivers=[receiver], stems=[stem], reports=[rx_report.to_dict()], audio_files=[output],
+        capture_name=cap.path.name, summary=summary, start_s=sel["start_s"], duration_s=sel["duration_s"],
+        fmt=plot_format, outputs=outputs, report_json=report)
+    return folder / "report.html"

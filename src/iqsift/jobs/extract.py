@@ -81,6 +81,8 @@ class ExtractResult:
         Wall-clock time of the whole job up to the report, plots included (s).
     annotations : str or None
         The SigMF metadata written with ``annotate`` (one annotation per activity segment).
+    html : str or None
+        ``report.html`` in the folder, when asked for (``html=True``).
     """
 
     capture: CaptureSummary
@@ -92,6 +94,7 @@ class ExtractResult:
     folder: str
     elapsed_s: float
     annotations: str | None = None
+    html: str | None = None
 
     schema = "extract-v1"
 
@@ -111,7 +114,8 @@ class ExtractResult:
             "input_throughput_msps": count / self.processing_s / 1e6 if self.processing_s > 0 else None,
             "channels": [c.to_dict() for c in self.channels],
             "outputs": {"folder": self.folder, "report": self.report_path,
-                        **({} if self.annotations is None else {"annotations": self.annotations})},
+                        **({} if self.annotations is None else {"annotations": self.annotations}),
+                        **({"html": self.html} if self.html is not None else {})},
             "elapsed_s": self.elapsed_s,
         })
 
@@ -124,6 +128,7 @@ def extract_file(
     spectra: bool = False,
     plot_format: str = "png",
     baseband: bool = False,
+    html: bool = False,
     start: str | float | None = None,
     duration: str | float | None = None,
     allow_nonfinite: bool = False,
@@ -158,6 +163,10 @@ def extract_file(
         Plot file format.
     baseband : bool
         Also write each channel's baseband as SigMF (``<name>.sigmf-meta``/``-data``).
+    html : bool
+        Also write ``report.html`` (:mod:`iqsift.html_report`): a table of the channels, the activity
+        timeline, and per channel an audio player, its stage-spectra overview and links to its JSON;
+        figures under ``report_files/`` in ``plot_format``.
     start, duration, allow_nonfinite, force, progress, format, rate, center, strict, verify, ppm
         As for :func:`demod_file`; without ``ppm`` the plan's ``[defaults] ppm`` (if any) applies.
     annotate : path, optional
@@ -174,7 +183,7 @@ def extract_file(
     with opened(capture, format=format, rate=rate, center=center, strict=strict,
                 verify=verify, ppm=ppm if ppm is not None else plan_obj.ppm, iq_correct=iq_correct) as cap:
         selection = cap.select(start, duration)
-        extractor = Extractor.from_plan(cap, plan_obj, selection=selection, spectra=spectra)
+        extractor = Extractor.from_plan(cap, plan_obj, selection=selection, spectra=spectra or html)
         parent = folder.parent if str(folder.parent) else Path(".")
         if not parent.is_dir():
             raise ParameterError(f"out_dir {folder}: the folder {parent} does not exist", parameters=("out_dir",))
@@ -185,12 +194,16 @@ def extract_file(
                 if (folder / "spectra" / _stem(rx)).is_dir():
                     check_stage_plot_folder(folder / "spectra" / _stem(rx), plot_format, force)
         protect = (*cap.files, *(() if plan_file is None else (plan_file,)))
+        if html:
+            from ..html_report import check_report_files
+
+            check_report_files(folder, [_stem(rx) for rx in extractor.receivers], plot_format, force, protect)
         with OutputSet(force=force, protect=protect) as outputs:
             annotate_tmp = outputs.reserve(check_annotation_path(cap, annotate)) if annotate else None
             outputs.make_folder(folder)  # removed again, with spectra/<name>/, unless the job finishes
             return _run(extractor, cap, selection, folder, outputs, started,
                         plan=str(plan_file) if plan_file is not None else plan_obj.source,
-                        baseband=baseband, spectra=spectra, plot_format=plot_format,
+                        baseband=baseband, spectra=spectra, html=html, plot_format=plot_format,
                         nonfinite=nonfinite_policy(allow_nonfinite), progress=progress,
                         annotate=None if annotate_tmp is None else (annotate_tmp, str(annotate)))
 
@@ -201,7 +214,7 @@ def _stem(rx: Any) -> str:
 
 
 def _run(extractor: Extractor, cap: Capture, selection: SampleRange, folder: Path, outputs: OutputSet,
-         started: float, *, plan: str, baseband: bool, spectra: bool, plot_format: str, nonfinite: str,
+         started: float, *, plan: str, baseband: bool, spectra: bool, html: bool, plot_format: str, nonfinite: str,
          progress: Progress | None, annotate: tuple[Path, str] | None = None) -> ExtractResult:
     writers: list[AudioWriter] = []
     bb_writers: list[SigMFWriter] = []
@@ -252,6 +265,9 @@ def _run(extractor: Extractor, cap: Capture, selection: SampleRange, folder: Pat
         reports = [ch.report.to_dict() for ch in channels]
         notes = [a for r in reports for a in activity_annotations(cap, r["channel"], r.get("activity") or [])]
         annotate[0].write_text(dumps(annotated_metadata(cap, annotate[1], notes)), encoding="utf-8")
+    html_path = None
+    if html:
+        html_path = _write_html(extractor, cap, selection, folder, outputs, channels, plot_format)
     result = ExtractResult(
         capture=CaptureSummary.of(cap),
         plan=plan,
@@ -262,6 +278,29 @@ def _run(extractor: Extractor, cap: Capture, selection: SampleRange, folder: Pat
         folder=str(folder),
         elapsed_s=time.perf_counter() - started,
         annotations=None if annotate is None else annotate[1],
+        html=None if html_path is None else str(html_path),
     )
     report_tmp.write_text(dumps(result.to_dict()))
     return result
+
+
+def _write_html(extractor: Extractor, cap: Capture, selection: SampleRange, folder: Path, outputs: OutputSet,
+                channels: list[ChannelResult], plot_format: str) -> Path:
+    """``report.html`` and its figures, into the same OutputSet as everything else."""
+    from ..html_report import write_html_report
+    from ..units import format_hz
+
+    sel = SelectionSummary.of(cap, selection).to_dict()
+    summary = [
+        ("Capture", str(cap.path)),
+        ("Centre, rate", f"{format_hz(extractor.center_hz)}, {cap.sample_rate_hz:g} S/s"),
+        ("Processed", f"{sel['start_s']:.3f} s to {sel['start_s'] + sel['duration_s']:.3f} s "
+                      f"({sel['duration_s']:.3f} s)"),
+        ("Channels", f"{len(channels)}, in one pass through a shared filter bank"),
+    ]
+    write_html_report(
+        folder, receivers=extractor.receivers, stems=[_stem(rx) for rx in extractor.receivers],
+        reports=[c.report.to_dict() for c in channels], audio_files=[c.outputs["audio"] for c in channels],
+        capture_name=cap.path.name, summary=summary, start_s=sel["start_s"], duration_s=sel["duration_s"],
+        fmt=plot_format, outputs=outputs, report_json=folder / "report.json")
+    return folder / "report.html"
