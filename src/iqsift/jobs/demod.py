@@ -161,7 +161,8 @@ def demod_file(
             check_stage_plot_folder(spectra_dir, plot_format, force)  # before any work
             keeper = AudioKeeper.attach(receiver)
         with OutputSet(force=force, protect=cap.files) as outputs:
-            audio_writer = AudioWriter(output, receiver.audio_rate_hz, outputs=outputs)
+            audio_writer = AudioWriter(output, receiver.audio_rate_hz, channels=receiver.audio_channels,
+                                       outputs=outputs)
             report_tmp = outputs.reserve(report) if report else None
             bb_writer = None
             if baseband:
