@@ -207,9 +207,10 @@ def score_reference(alignment: Alignment) -> ReferenceScore:
     from pystoi import stoi  # lazy: only a reference needs it
 
     x, y, fs = alignment.reference, alignment.recovered, alignment.rate_hz
+    rate = int(round(fs))  # pystoi's resampler takes whole rates (audio rates are whole: Channel)
     return ReferenceScore(
-        stoi=float(stoi(x, y, fs, extended=False)),
-        estoi=float(stoi(x, y, fs, extended=True)),
+        stoi=float(stoi(x, y, rate, extended=False)),
+        estoi=float(stoi(x, y, rate, extended=True)),
         segmental_snr_db=segmental_snr_db(x, y, fs),
         delay_s=alignment.delay_s,
         correlation=alignment.correlation,
