@@ -130,3 +130,25 @@ def test_cli_demod_isb(capture, tmp_path, run_cli):
     assert status == 0, stderr
     assert soundfile.info(str(out)).channels == 2
     assert json.loads(stdout)["schema"] == "demod-v1"
+
+
+def test_extract_plan_isb_by_mode_and_by_emission(capture, tmp_path, run_cli):
+    plan = tmp_path / "plan.toml"
+    plan.write_text(
+        f'[[channel]]\nname = "by-emission"\noffset = {OFFSET_HZ}\nemission = "6K00B8E"\n'
+        f'[[channel]]\nname = "by-mode"\noffset = {OFFSET_HZ}\nbandwidth = "6k"\nmode = "isb"\n'
+        f'[[channel]]\nname = "one-side"\noffset = {OFFSET_HZ}\nemission = "6K00B8E"\nmode = "usb"\n'
+    )
+    status, stdout, stderr = run_cli("extract", capture, "--plan", plan, "--out-dir", tmp_path / "out", "--json",
+                                     "--quiet")
+    assert status == 0, stderr
+    import jsonschema
+
+    jsonschema.validate(json.loads(stdout), load_schema("extract-v1"))
+    for name in ("by-emission", "by-mode"):
+        audio, rate = soundfile.read(tmp_path / "out" / f"{name}.wav", dtype="float64")
+        steady = audio[int(0.2 * rate):-int(0.2 * rate)]
+        assert audio.shape[1] == 2
+        for column, own in ((0, LOWER_TONE_HZ), (1, UPPER_TONE_HZ)):
+            assert audio_quality(steady[:, column], rate, tone_hz=own).snr_db >= 40.0
+    assert soundfile.info(str(tmp_path / "out" / "one-side.wav")).channels == 1

@@ -133,3 +133,32 @@ def test_segmental_snr_clamps():
     assert segmental_snr_db(x, x, 16000) == pytest.approx(35.0)
     with pytest.raises(ParameterError):
         segmental_snr_db(x[:10], x[:10], 16000)
+
+
+def test_isb_scores_each_sideband_against_its_channel_of_a_stereo_reference(tmp_path):
+    # two speech programmes, one per sideband; reference: left = lower, right = upper (the audio's order)
+    lower, rate = soundfile.read(ROOT / "sample_captures" / "speech" / "lower-net.wav", dtype="float64")
+    upper, _ = soundfile.read(SPEECH, dtype="float64")
+    up = int(FS // rate)
+    x = (ssb_signal(signal.resample_poly(lower, up, 1), FS, sideband="lsb", level_dbfs=-33, carrier_hz=OFFSET_HZ)
+         + ssb_signal(signal.resample_poly(upper, up, 1), FS, sideband="usb", level_dbfs=-30, carrier_hz=OFFSET_HZ))
+    x = x + awgn(x.size, power_dbfs=-80, seed=1)
+    with SigMFWriter(tmp_path / "isb", FS, datatype="cf32_le") as w:
+        w.write(x.astype(np.complex64))
+    stereo = tmp_path / "ref.wav"
+    soundfile.write(stereo, np.column_stack([lower, upper]), int(rate), subtype="FLOAT")
+    result = measure_file(tmp_path / "isb.sigmf-meta", make_channel(offset=OFFSET_HZ, emission="6K00B8E"),
+                          reference=stereo)
+    sides = result.to_dict()["audio_sidebands"]
+    for name in ("lower", "upper"):
+        assert sides[name]["reference"]["correlation"] > 0.5 and abs(sides[name]["reference"]["delay_s"]) < 1e-3
+        assert sides[name]["stoi"] > 0.8
+    # the wrong way round (upper programme as the lower reference) does not correlate: the sidebands are apart
+    swapped = tmp_path / "swapped.wav"
+    soundfile.write(swapped, np.column_stack([upper, lower]), int(rate), subtype="FLOAT")
+    with pytest.raises(ParameterError, match="does not correlate"):
+        measure_file(tmp_path / "isb.sigmf-meta", make_channel(offset=OFFSET_HZ, emission="6K00B8E"),
+                     reference=swapped)
+    with pytest.raises(ParameterError, match="has 1 channel"):
+        measure_file(tmp_path / "isb.sigmf-meta", make_channel(offset=OFFSET_HZ, emission="6K00B8E"),
+                     reference=SPEECH)

@@ -107,18 +107,24 @@ class SidebandSplit:
         return (self.upper_taps.size - 1) // 2
 
     def as_dict(self) -> dict[str, Any]:
-        """The design report's entry for the split."""
+        """The design report's entry for the split (``stopband_hz``: the other sideband's nearest audio edge;
+        ``measured_atten_db`` = ``measured_rejection_db``, the opposite-sideband rejection)."""
         return {
             "name": "sideband split (lower | upper)",
             "kind": "sideband_split",
             "rate_in_hz": self.rate_hz,
             "rate_out_hz": self.rate_hz,
             "passband_hz": f"{self.low_hz:g}-{self.high_hz:g}",
+            "stopband_hz": -self.low_hz,
             "transition_hz": self.transition_hz,
-            "taps": int(self.upper_taps.size),
+            "num_taps": int(self.upper_taps.size),
             "designed_atten_db": self.atten_db,
             "measured_ripple_db": self.ripple_db,
+            "measured_atten_db": self.rejection_db,
             "measured_rejection_db": self.rejection_db,
+            "group_delay_s": self.delay_samples / self.rate_hz,
+            # two complex filters on complex samples: 4 real multiply-adds per tap each
+            "macs_per_input_sample": 8.0 * self.upper_taps.size,
         }
 
 

@@ -158,8 +158,9 @@ def align_reference(audio: np.ndarray, rate_hz: float, reference: np.ndarray, re
     x = _resampled(np.asarray(reference, np.float64), reference_rate_hz, rate_hz)
     y = np.asarray(audio, np.float64)
     if not (np.any(x) and np.any(y)):
-        raise ParameterError(f"{name}: does not correlate with the recovered audio ({'reference' if not np.any(x) else 'audio'} "
-                             "is silent)", parameters=("reference",))
+        silent = "reference" if not np.any(x) else "audio"
+        raise ParameterError(f"{name}: does not correlate with the recovered audio (the {silent} is silent)",
+                             parameters=("reference",))
     corr = signal.correlate(y, x, mode="full", method="fft")
     k = int(np.argmax(np.abs(corr)))
     lag = k - (x.size - 1)  # y[n + lag] ~ x[n]
@@ -169,10 +170,14 @@ def align_reference(audio: np.ndarray, rate_hz: float, reference: np.ndarray, re
     xa, ya = x[x0:x0 + n], y[y0:y0 + n] * (-1.0 if inverted else 1.0)
     denom = math.sqrt(float(np.dot(xa, xa)) * float(np.dot(ya, ya))) if n > 0 else 0.0
     rho = float(np.dot(xa, ya)) / denom if denom > 0 else 0.0
-    if rho < MIN_CORRELATION or n / rate_hz < MIN_REFERENCE_S:
+    if rho >= MIN_CORRELATION and n / rate_hz < MIN_REFERENCE_S:
+        raise ParameterError(f"{name}: overlaps the recovered audio for only {n / rate_hz:.2f} s at delay "
+                             f"{lag / rate_hz:+.4f} s; at least {MIN_REFERENCE_S:g} s are needed",
+                             parameters=("reference",))
+    if rho < MIN_CORRELATION:
         raise ParameterError(f"{name}: does not correlate with the recovered audio (best normalised correlation "
-                             f"{rho:.3f} over {n / rate_hz:.2f} s at delay {lag / rate_hz:+.4f} s; needs >= "
-                             f"{MIN_CORRELATION:g} over >= {MIN_REFERENCE_S:g} s)", parameters=("reference",))
+                             f"{rho:.3f}, at delay {lag / rate_hz:+.4f} s; it must be at least {MIN_CORRELATION:g})",
+                             parameters=("reference",))
     return Alignment(xa, ya, float(rate_hz), lag / rate_hz, rho, inverted)
 
 

@@ -229,7 +229,9 @@ class ChannelDesign:
                 out.append(entry)
         ch_rate = self.channel_rate_hz
         if self.sideband_split is not None:
-            out.append(self.sideband_split.as_dict())
+            split = self.sideband_split.as_dict()
+            split["macs_per_chain_input_sample"] = split["macs_per_input_sample"] / self.decimation
+            out.append(split)
         out.append({"name": f"detector ({self.channel.mode})", "kind": "detector", "rate_in_hz": ch_rate,
                     "rate_out_hz": ch_rate})
         band = self.channel.audio_band
