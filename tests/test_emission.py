@@ -206,8 +206,9 @@ def test_modes_on_request() -> None:
 
 
 def test_modes_tuple() -> None:
-    assert MODES == ("envelope", "coherent", "usb", "lsb", "dsb")
-    assert set(allowed_modes("A3E")) == set(MODES)
+    assert MODES == ("envelope", "coherent", "usb", "lsb", "dsb", "isb")
+    assert set(allowed_modes("A3E")) == set(MODES) - {"isb"}  # one programme: no independent sidebands
+    assert allowed_modes("B8E") == ("isb", "usb", "lsb")
     assert allowed_modes("J3E") == ("usb", "lsb")
 
 
