@@ -152,3 +152,17 @@ def test_extract_plan_isb_by_mode_and_by_emission(capture, tmp_path, run_cli):
         for column, own in ((0, LOWER_TONE_HZ), (1, UPPER_TONE_HZ)):
             assert audio_quality(steady[:, column], rate, tone_hz=own).snr_db >= 40.0
     assert soundfile.info(str(tmp_path / "out" / "one-side.wav")).channels == 1
+
+
+def test_squelch_gates_both_sidebands_alike():
+    # the squelch (DEVELOPERS.md: a gain curve per audio frame) mutes a frame in both channels or in neither
+    n = int(1.2 * FS)
+    x = isb_tones(seed=4, noise_dbfs=-90.0)[:n].copy()
+    x[int(0.6 * FS):] = awgn(n - int(0.6 * FS), power_dbfs=-90.0, seed=5)  # the link drops after 0.6 s
+    ch = make_channel(offset=OFFSET_HZ, emission="6K00B8E", squelch_db=10.0)
+    audio = Receiver(FS, ch).run(samples=x).audio
+    assert audio.shape == (round(n * 16000 / FS), 2)
+    tail = audio[int(0.9 * 16000):]
+    assert np.all(tail == 0.0)  # muted in both channels
+    head = audio[int(0.1 * 16000):int(0.5 * 16000)]
+    assert np.all(np.abs(head).max(axis=0) > 0.05)  # both programmes pass while the link is up
