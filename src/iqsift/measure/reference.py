@@ -14,7 +14,8 @@ both computed by the ``pystoi`` package (MIT licence) on the aligned signals, an
 
 * **segmental SNR**: the mean over 20 ms frames of ``10·log10(Σ x² / Σ (x − y)²)``, each frame's value
   clamped to [−10, 35] dB (Quackenbush, Barnwell & Clements, *Objective Measures of Speech Quality*,
-  1988; Loizou, *Speech Enhancement: Theory and Practice*, ch. 10), after the recovered audio ``y``
+  1988; Loizou, *Speech Enhancement: Theory and Practice*, ch. 10), over the frames where the reference
+  is within 40 dB of its loudest frame (pauses left out, as STOI does), after the recovered audio ``y``
   is scaled by the least-squares gain onto the reference ``x`` (the receiver's level is not the
   message's: common practice).
 
@@ -53,6 +54,10 @@ SEGMENT_S = 0.02
 
 SEGMENT_CLAMP_DB = (-10.0, 35.0)
 """Limits each frame's SNR is clamped to (dB) (Quackenbush et al. 1988; Loizou, ch. 10)."""
+
+SEGMENT_RANGE_DB = 40.0
+"""Frames of the reference more than this far below its loudest frame are pauses and are left out of the segmental
+SNR (dB): the speech dynamic range STOI uses for the same purpose (Taal et al. 2011)."""
 
 
 @dataclass(frozen=True)
@@ -187,7 +192,8 @@ def segmental_snr_db(reference: np.ndarray, recovered: np.ndarray, rate_hz: floa
 
     ``recovered`` is first scaled by the least-squares gain ``<x, y> / <y, y>``; then each
     non-overlapping frame of ``frame_s`` gives ``10·log10(Σ x² / Σ (x − y)²)``, clamped to ``clamp_db``,
-    and the frames' values are averaged (Quackenbush, Barnwell & Clements 1988).
+    and the values of the frames within :data:`SEGMENT_RANGE_DB` of the reference's loudest frame are
+    averaged (Quackenbush, Barnwell & Clements 1988; pauses left out as in Taal et al. 2011).
     """
     x = np.asarray(reference, np.float64)
     y = np.asarray(recovered, np.float64)
@@ -201,9 +207,11 @@ def segmental_snr_db(reference: np.ndarray, recovered: np.ndarray, rate_hz: floa
     es = xs - y[: m * frame].reshape(m, frame)
     sig = np.sum(xs**2, axis=1)
     err = np.sum(es**2, axis=1)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        per = 10.0 * np.log10(sig / err)
-    per = np.where(np.isnan(per), clamp_db[0], per)  # a silent frame recovered as silence: the floor
+    speech = sig > sig.max() * 10 ** (-SEGMENT_RANGE_DB / 10)
+    if not speech.any():
+        raise ParameterError("reference: is silent", parameters=("reference",))
+    with np.errstate(divide="ignore"):
+        per = 10.0 * np.log10(sig[speech] / err[speech])  # err = 0: +inf, clamped to the top
     return float(np.mean(np.clip(per, clamp_db[0], clamp_db[1])))
 
 
