@@ -179,7 +179,8 @@ def test_parse_emission_fields() -> None:
         ("3K00H3E", "usb", 0.0),
         ("2K99R3E", "usb", 0.0),
         ("2K70J3E", "usb", 300.0),
-        ("6K00B8E", "usb", 0.0),
+        ("6K00B8E", "isb", 0.0),  # RR Appendix 1: B = independent sidebands
+        ("6K00B7E", "isb", 0.0),
         ("5K75J8E", "usb", 300.0),
     ],
 )
@@ -205,8 +206,9 @@ def test_modes_on_request() -> None:
 
 
 def test_modes_tuple() -> None:
-    assert MODES == ("envelope", "coherent", "usb", "lsb", "dsb")
-    assert set(allowed_modes("A3E")) == set(MODES)
+    assert MODES == ("envelope", "coherent", "usb", "lsb", "dsb", "isb")
+    assert set(allowed_modes("A3E")) == set(MODES) - {"isb"}  # one programme: no independent sidebands
+    assert allowed_modes("B8E") == ("isb", "usb", "lsb")
     assert allowed_modes("J3E") == ("usb", "lsb")
 
 

@@ -4,7 +4,8 @@ The stated bandwidth is the necessary bandwidth of the emission (ITU Radio
 Regulations Appendix 1; ITU-R SM.1138). From it and the mode follow the
 passband relative to the carrier:
 
-* AM with carrier (``envelope``, ``coherent``) and ``dsb``: ``(-B/2, +B/2)``.
+* AM with carrier (``envelope``, ``coherent``), ``dsb`` and ``isb`` (independent sidebands, B8E:
+  Bn = the sum of the two sidebands' M, SM.1138, so each sideband is B/2 wide): ``(-B/2, +B/2)``.
 * ``usb``: ``(f_low, f_low + B)``; ``lsb``: ``(-(f_low + B), -f_low)``, where
   ``f_low`` is the lowest modulating frequency: 300 Hz for suppressed-carrier
   telephony (J3E: B = 3000 − 300 = 2700 Hz, SM.1138), 0 Hz for full or reduced
@@ -209,7 +210,7 @@ def make_channel(
         Necessary bandwidth (Hz; ``"6k"``).
     emission : str, optional
         ITU emission designator (``"6K00A3E"``, ``"2K70J3E"``).
-    mode : {"envelope", "coherent", "usb", "lsb", "dsb"}, optional
+    mode : {"envelope", "coherent", "usb", "lsb", "dsb", "isb"}, optional
         Detector.
     audio_rate : float or str
         Output audio rate (samples/s).

@@ -30,8 +30,10 @@ What iqsift demodulates
       ``"envelope"`` and ``"coherent"`` on request;
     - ``R`` single sideband, reduced or variable carrier: ``"usb"`` or ``"lsb"``;
     - ``J`` single sideband, suppressed carrier: ``"usb"`` or ``"lsb"``;
-    - ``B`` independent sidebands: ``"usb"`` or ``"lsb"``. iqsift recovers one
-      sideband at a time; to hear both, plan two channels.
+    - ``B`` independent sidebands: default ``"isb"`` (both sidebands, two
+      audio channels: left = lower, right = upper); ``"usb"`` or ``"lsb"``
+      to take one. ``B7E`` is accepted as well as ``B8E``: its sidebands are
+      demodulated as telephony channels all the same.
 
     with second symbol ``3`` (a single channel of analogue information) or
     ``8`` (two or more channels of analogue information; iqsift gives the
@@ -126,7 +128,7 @@ _DETECTORS: dict[str, tuple[str, tuple[str, ...], float]] = {
     "H": ("usb", ("usb", "lsb", "envelope", "coherent"), 0.0),
     "R": ("usb", ("usb", "lsb"), 0.0),
     "J": ("usb", ("usb", "lsb"), 300.0),
-    "B": ("usb", ("usb", "lsb"), 0.0),
+    "B": ("isb", ("isb", "usb", "lsb"), 0.0),
 }
 _NATURES_HANDLED = ("3", "8")
 _INFORMATION_HANDLED = ("E",)
@@ -134,7 +136,7 @@ _INFORMATION_HANDLED = ("E",)
 #: Classes iqsift demodulates (first, second and third symbol).
 HANDLED_CLASSES: tuple[str, ...] = tuple(
     f + n + i for f in _DETECTORS for n in _NATURES_HANDLED for i in _INFORMATION_HANDLED
-)
+) + ("B7E",)
 
 _HANDLED_TEXT = (
     "it handles A3E, H3E, R3E, J3E, B8E (AM family, analogue telephony; "
@@ -347,7 +349,7 @@ def _parse_class(text: str, shown: str, bandwidth_hz: float | None, mode: str | 
         raise ParameterError(
             f"emission {shown}: class {cls} ({_FIRST[first]}) cannot be demodulated by iqsift; {_HANDLED_TEXT}"
         )
-    if second not in _NATURES_HANDLED:
+    if second not in _NATURES_HANDLED and not (first == "B" and second == "7"):
         raise ParameterError(
             f"emission {shown}: class {cls} ({_SECOND[second]}) cannot be demodulated by iqsift; {_HANDLED_TEXT}"
         )

@@ -24,7 +24,8 @@ from .dsp.post import CarrierNormaliser
 from .dsp.stages import Mixer, UpFirDn
 from .errors import ParameterError
 from .plan import ChannelPlan, PlannedChannel
-from .receiver import ChannelDesign, Receiver, ReceiverReport, StageTaps, bank_channel, design_channel, input_tap
+from .receiver import (ChannelBackEnd, ChannelDesign, Receiver, ReceiverReport, StageTaps, bank_channel, design_channel,
+                       input_tap)
 
 if TYPE_CHECKING:
     from .captures import Capture, SampleRange
@@ -71,6 +72,7 @@ class _EnvelopeBatch:
         self.members = members
         self.rxs = [receivers[i] for i in members]
         lead = self.rxs[0].back
+        assert isinstance(lead, ChannelBackEnd)  # only ChannelBackEnds have a batch key
         rows = len(members)
         # the lead channel's own stages, made for all rows (same taps, fresh state)
         self.normaliser = cast(CarrierNormaliser, lead.normaliser).for_rows(rows)

@@ -2,7 +2,7 @@
 
 from .annotate import annotated_metadata, check_annotation_path, recording_edges
 from .atomic import OutputSet, check_output_path, signals_deferred
-from .audio import AudioWriter
+from .audio import AudioWriter, read_audio
 from .capture import DEFAULT_BLOCK_SIZE, Annotation, Capture, SampleRange, Segment
 from .datatypes import ALL_DATATYPES, DataType, parse_datatype
 from .integrity import ChecksumError
@@ -32,6 +32,7 @@ __all__ = [
     "input_files",
     "check_output_path",
     "open_capture",
+    "read_audio",
     "parse_datatype",
     "sigmf_paths",
     "signals_deferred",

@@ -18,7 +18,7 @@ from ..errors import CaptureError, IqsiftWarning, ParameterError
 from .atomic import OutputSet
 from .capture import Capture, Segment
 
-__all__ = ["read_audio_capture", "AudioWriter", "AUDIO_FORMATS"]
+__all__ = ["read_audio_capture", "read_audio", "AudioWriter", "AUDIO_FORMATS"]
 
 AUDIO_FORMATS = {".wav": "WAV", ".flac": "FLAC"}
 
@@ -57,7 +57,7 @@ def read_audio_capture(
     path = Path(path)
     try:
         info = soundfile.info(str(path))
-    except (RuntimeError, soundfile.LibsndfileError) as exc:
+    except (RuntimeError, ValueError) as exc:  # soundfile's errors are RuntimeErrors
         raise CaptureError(f"{path}: not a readable WAV/FLAC file: {exc}") from None
     if info.channels > 2:
         raise CaptureError(
@@ -90,6 +90,25 @@ def read_audio_capture(
         clip_high=clip_high,
         can_hold_nonfinite=subtype in ("FLOAT", "DOUBLE"),
     )
+
+
+def read_audio(path: str | os.PathLike, *, label: str = "reference") -> tuple[np.ndarray, float]:
+    """Read a whole audio file (WAV, FLAC ...) as float64 frames ``(n, channels)`` and its rate (samples/s).
+
+    Raises
+    ------
+    ParameterError
+        One line naming the file, when it is missing or not readable as audio.
+    """
+    path = Path(path)
+    if not path.is_file():
+        raise ParameterError(f"{label}: {path}: no such file", parameters=(label,))
+    try:
+        data, rate = soundfile.read(str(path), dtype="float64", always_2d=True)
+    except (RuntimeError, ValueError) as exc:  # soundfile's errors are RuntimeErrors
+        raise ParameterError(f"{label}: {path}: cannot read as audio ({str(exc).splitlines()[0]})",
+                             parameters=(label,)) from None
+    return data, float(rate)
 
 
 class AudioWriter:

@@ -116,7 +116,8 @@ def format_demod(result: dict) -> str:
         f"chain      {d['engine']}: {d['rate_in_hz']:g} S/s -> /{d['decimation']} -> {d['channel_rate_hz']:g} S/s "
         f"-> audio {d['audio_rate_hz']:g} S/s; {d['macs_per_input_sample']:.1f} multiply-adds per input sample",
         f"delay      {result['delay']['compensated_s'] * 1e3:.3f} ms compensated (audio is time-aligned with the capture)",
-        f"audio      {result['outputs']['audio']} ({result['audio_samples']} samples)",
+        f"audio      {result['outputs']['audio']} ({result['audio_samples']} samples"
+        + ("; 2 channels: left = lower sideband, right = upper)" if ch["mode"] == "isb" else ")"),
     ]
     if result["outputs"].get("baseband"):
         lines.append(f"baseband   {result['outputs']['baseband']}")

@@ -59,6 +59,8 @@ def measure_command(
     no_verify: bool = NoVerifyOption,
     ppm: Optional[float] = PpmOption,
     iq_correct: bool = IqCorrectOption,
+    reference: OptStr = typer.Option(None, "--reference", help="The transmitted message (WAV/FLAC, >= 3 s; "
+                                     "2 channels for isb): adds STOI, extended STOI and segmental SNR."),
 ) -> None:
     """Measure carrier frequency error and level, modulation depth, SNR/SINAD/THD, bandwidths and activity."""
     tone_hz = None if tone is None else parse_positive_hz(tone, "--tone")
@@ -71,7 +73,7 @@ def measure_command(
             capture_path, channel, tone_hz=tone_hz, weighting=weighting, x_db=x_db, threshold_db=threshold,
             start=start, duration=duration, allow_nonfinite=allow_nonfinite, progress=progress,
             format=format, rate=rate, center=center, strict=strict, verify=not no_verify, ppm=ppm,
-            iq_correct=iq_correct,
+            iq_correct=iq_correct, reference=reference,
         ).to_dict()
     if json_out:
         emit_json(result)
@@ -81,6 +83,23 @@ def measure_command(
 
 def _num(value: Any, fmt: str, unit: str = "") -> str:
     return "-" if value is None else f"{value:{fmt}}{unit}"
+
+
+def _audio_lines(label: str, a: dict[str, Any] | None) -> list[str]:
+    if not a:
+        return []
+    lines = []
+    if "snr_db" in a:
+        lines.append(f"{label:<15}SNR {_num(a['snr_db'], '.2f', ' dB')}, SINAD {_num(a['sinad_db'], '.2f', ' dB')} "
+                     f"(receiver (S+N+D)/(N+D) {_num(a['receiver_sinad_db'], '.2f', ' dB')}), "
+                     f"THD {_num(a['thd_percent'], '.3f', ' %')}, tone {_num(a['tone_hz'], '.1f', ' Hz')}, "
+                     f"weighting {a['weighting']}")
+    if "stoi" in a:
+        ref = a["reference"]
+        lines.append(f"{label:<15}STOI {_num(a['stoi'], '.3f')}, ESTOI {_num(a['estoi'], '.3f')}, segmental SNR "
+                     f"{_num(a['segmental_snr_db'], '.2f', ' dB')}; reference delay {ref['delay_s'] * 1e3:+.2f} ms, "
+                     f"correlation {ref['correlation']:.3f}{', inverted' if ref['inverted'] else ''}")
+    return lines
 
 
 def format_measure(r: dict[str, Any]) -> str:
@@ -102,11 +121,9 @@ def format_measure(r: dict[str, Any]) -> str:
     b = r.get("bandwidth")
     if b:
         lines.append(f"bandwidth      occupied (99 %) {b['occupied_hz']:.1f} Hz, {b['x_db']:g} dB {b['x_db_hz']:.1f} Hz")
-    a = r.get("audio")
-    if a:
-        lines.append(f"audio          SNR {_num(a['snr_db'], '.2f', ' dB')}, SINAD {_num(a['sinad_db'], '.2f', ' dB')} "
-                     f"(receiver (S+N+D)/(N+D) {_num(a['receiver_sinad_db'], '.2f', ' dB')}), "
-                     f"THD {_num(a['thd_percent'], '.3f', ' %')}, weighting {a['weighting']}")
+    sides = r.get("audio_sidebands") or {}
+    for label, a in [("audio", r.get("audio")), *((f"audio {k:<8}", sides.get(k)) for k in ("lower", "upper"))]:
+        lines += _audio_lines(label, a)
     acts = r.get("activity") or []
     lines.append(f"activity       {len(acts)} segment(s)")
     for seg in acts[:20]:

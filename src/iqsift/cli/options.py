@@ -56,7 +56,8 @@ FreqOption = typer.Option(None, "--freq", help="Carrier frequency in Hz, absolut
 OffsetOption = typer.Option(None, "--offset", help="Carrier offset from the capture centre in Hz (e.g. -25k).")
 BandwidthOption = typer.Option(None, "--bandwidth", "-b", help="Channel (necessary) bandwidth in Hz (default 6k).")
 EmissionOption = typer.Option(None, "--emission", "-e", help="ITU emission designator, e.g. 6K00A3E, 2K70J3E.")
-ModeOption = typer.Option(None, "--mode", "-m", help="Detector: envelope, coherent, usb, lsb or dsb.")
+ModeOption = typer.Option(None, "--mode", "-m", help="Detector: envelope, coherent, usb, lsb, dsb or isb "
+                          "(independent sidebands: stereo audio, left = lower).")
 AudioRateOption = typer.Option("16000", "--audio-rate", help="Output audio rate in samples/s.")
 EngineOption = typer.Option("fft", "--engine", help="Front end: fft (fast convolution) or polyphase (time domain).")
 AgcOption = typer.Option(None, "--agc/--no-agc", help="Automatic gain control (default: on for usb/lsb/dsb only).")
@@ -95,6 +96,7 @@ FLAGS: dict[str, str] = {
     "annotate": "--annotate",
     "iq_correct": "--iq-correct",
     "audio_format": "--audio-format",
+    "reference": "--reference",
 }
 """Python parameter name -> the flag that sets it."""
 

@@ -79,7 +79,7 @@ __all__ = [
     "detect",
 ]
 
-DETECTOR_MODES = MODES
+DETECTOR_MODES = tuple(m for m in MODES if m != "isb")  # isb = two sideband detectors (receiver/isb.py)
 
 _TWO_PI = 2.0 * math.pi
 

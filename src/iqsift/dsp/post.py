@@ -418,10 +418,10 @@ class Squelch:
     def apply(self, audio: np.ndarray, final: bool = False) -> np.ndarray:
         """Gate audio (the samples following those given before); returns the audio that can be released
         now (its frames' stretches are complete), all of it when ``final``."""
-        held = np.concatenate([self._held, np.asarray(audio, np.float32)]) if self._held.size else \
-            np.asarray(audio, np.float32)
+        audio = np.asarray(audio, np.float32)  # (n,) or (n, channels): frames are rows
+        held = np.concatenate([self._held, audio]) if self._held.shape[0] else audio
         if final:
-            ready = held.size
+            ready = held.shape[0]
         else:
             # frames whose centres lie in complete stretches are decided; audio up to the last such centre goes
             decided = int(np.floor((len(self._floors) * self.stretch) / self.frame - 0.5)) + 1
@@ -430,10 +430,11 @@ class Squelch:
                 ready = 0
             else:
                 known_s = self.time_offset_s + (decided - 0.5) * self.frame / self.rate_hz
-                ready = int(np.clip(np.floor(known_s * self.audio_rate_hz) + 1 - self._released, 0, held.size))
+                ready = int(np.clip(np.floor(known_s * self.audio_rate_hz) + 1 - self._released, 0, held.shape[0]))
         out, self._held = held[:ready], held[ready:]
-        if out.size:
-            times = (self._released + np.arange(out.size)) / self.audio_rate_hz
-            out = out * self._gains(times)
-            self._released += out.size
+        if out.shape[0]:
+            times = (self._released + np.arange(out.shape[0])) / self.audio_rate_hz
+            gains = self._gains(times)
+            out = out * (gains[:, None] if out.ndim == 2 else gains)
+            self._released += out.shape[0]
         return out

@@ -208,9 +208,13 @@ def demod_file(
         with OutputSet(force=force, protect=cap.files) as outputs:
             audio_writer: AudioWriter | StreamAudioWriter
             if str(output) == "-":
+                if receiver.audio_channels != 1:
+                    raise ParameterError("output: '-' streams one audio channel; an isb channel has two, "
+                                         "write it to a WAV or FLAC file", parameters=("output",))
                 audio_writer = StreamAudioWriter(receiver.audio_rate_hz, audio_format)
             else:
-                audio_writer = AudioWriter(output, audio_file_rate(receiver.audio_rate_hz), outputs=outputs)
+                audio_writer = AudioWriter(output, audio_file_rate(receiver.audio_rate_hz),
+                                           channels=receiver.audio_channels, outputs=outputs)
             report_tmp = outputs.reserve(report) if report else None
             annotate_tmp = outputs.reserve(check_annotation_path(cap, annotate)) if annotate else None
             bb_writer = None

@@ -222,7 +222,8 @@ def _run(extractor: Extractor, cap: Capture, selection: SampleRange, folder: Pat
     centre = extractor.center_hz
     for rx in extractor.receivers:
         audio_path = folder / f"{_stem(rx)}.wav"
-        writers.append(AudioWriter(audio_path, audio_file_rate(rx.audio_rate_hz), outputs=outputs))
+        writers.append(AudioWriter(audio_path, audio_file_rate(rx.audio_rate_hz), channels=rx.audio_channels,
+                                   outputs=outputs))
         entry: dict[str, Any] = {"audio": str(audio_path)}
         if baseband:
             bb_path = folder / f"{_stem(rx)}.sigmf-meta"

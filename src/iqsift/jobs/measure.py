@@ -2,13 +2,19 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-from typing import Any
+from dataclasses import dataclass, field
+from os import PathLike
+from typing import Any, Mapping
 
+import numpy as np
+
+from ..captures import read_audio
 from ..channel import Channel
-from ..measure import WEIGHTINGS, ActivitySegment
+from ..errors import ParameterError
+from ..measure import WEIGHTINGS, ActivitySegment, ReferenceScore, align_reference, score_reference
+from ..measure.reference import MIN_REFERENCE_S
 from ..measure.sections import AudioQualitySummary, ChannelBandwidthResult, ModulationSummary, TunedCarrierResult
-from ..receiver import Receiver, ReceiverReport
+from ..receiver import SIDEBAND_NAMES, Receiver, ReceiverReport
 from .common import (
     CaptureArg,
     CaptureSummary,
@@ -39,13 +45,45 @@ class MeasureResult:
     receiver: ReceiverReport
     capture: CaptureSummary
     selection: SelectionSummary
+    reference: Mapping[str, ReferenceScore] = field(default_factory=dict)
+    """Scores against the reference: ``{"audio": ...}``, or ``{"lower": ..., "upper": ...}`` for ISB."""
+    reference_path: str | None = None
 
     schema = "measure-v1"
 
     def to_dict(self) -> dict[str, Any]:
-        """The JSON ``iqsift measure --json`` prints."""
-        return stamped(self.schema, {**self.receiver.to_dict(), "capture": self.capture.to_dict(),
-                                     "selection": self.selection.to_dict()})
+        """The JSON ``iqsift measure --json`` prints; reference scores join the ``audio`` section(s)."""
+        out = {**self.receiver.to_dict(), "capture": self.capture.to_dict(), "selection": self.selection.to_dict()}
+        for name, score in self.reference.items():
+            holder = out if name == "audio" else out["audio_sidebands"]
+            section = dict(holder.get(name) or {})
+            section.update(score.to_dict())
+            section["reference"]["path"] = self.reference_path
+            holder[name] = section
+            holder.pop(f"{name}_reason", None)
+        return stamped(self.schema, out)
+
+
+def _read_reference(path: str | PathLike, channels: int) -> tuple[np.ndarray, float]:
+    """The reference's frames ``(n, channels)`` and rate, refused (one line) when too short or of the wrong
+    channel count, before any capture sample is read."""
+    data, rate = read_audio(path)
+    if data.shape[0] / rate < MIN_REFERENCE_S:
+        raise ParameterError(f"reference: {path}: {data.shape[0] / rate:.2f} s long; a reference must be at least "
+                             f"{MIN_REFERENCE_S:g} s (STOI needs 30 segments of 384 ms)", parameters=("reference",))
+    if data.shape[1] != channels:
+        want = "2 (left = lower sideband, right = upper)" if channels == 2 else "1"
+        raise ParameterError(f"reference: {path}: has {data.shape[1]} channel(s); the channel's audio has {want}",
+                             parameters=("reference",))
+    return data, rate
+
+
+def _scores(audio: np.ndarray, rate_hz: float, reference: np.ndarray, reference_rate_hz: float,
+            path: str | PathLike, names: tuple[str, ...]) -> dict[str, ReferenceScore]:
+    audio2 = audio.reshape(audio.shape[0], -1)
+    return {name: score_reference(align_reference(audio2[:, i], rate_hz, reference[:, i], reference_rate_hz,
+                                                  name=f"reference: {path}" + ("" if name == "audio" else f" ({name})")))
+            for i, name in enumerate(names)}
 
 
 def measure_file(
@@ -67,6 +105,7 @@ def measure_file(
     verify: bool = True,
     ppm: float | None = None,
     iq_correct: bool = False,
+    reference: str | PathLike | None = None,
 ) -> MeasureResult:
     """Measure one channel of a capture; writes nothing.
 
@@ -86,6 +125,10 @@ def measure_file(
         Activity threshold above the channel's noise floor, dB.
     start, duration, allow_nonfinite, progress, format, rate, center, strict, verify, ppm
         As for :func:`demod_file`.
+    reference : path, optional
+        The transmitted message (an audio file, >= 3 s; two channels, lower and upper, for ISB): the
+        audio is scored against it (STOI, extended STOI, segmental SNR; :mod:`iqsift.measure.reference`)
+        after alignment by cross-correlation. The recovered audio is kept in memory for this.
     """
     with opened(capture, format=format, rate=rate, center=center, strict=strict,
                 verify=verify, ppm=ppm, iq_correct=iq_correct) as cap:
@@ -93,12 +136,19 @@ def measure_file(
         receiver = Receiver.for_capture(cap, channel, selection, agc=False).analyze(
             tone_hz=tone_hz, weighting=weighting, x_db=x_db, activity={"threshold_db": threshold_db},
             time_offset_s=selection.start / cap.sample_rate_hz)  # activity in capture time
+        ref = None if reference is None else _read_reference(reference, receiver.audio_channels)
         blocks = cap.blocks(start=selection.start, count=selection.count,
                             nonfinite=nonfinite_policy(allow_nonfinite))
-        for _ in receiver.stream(counted(blocks, selection.count, progress)):
-            pass
+        kept = [audio for audio in receiver.stream(counted(blocks, selection.count, progress))
+                if ref is not None]
+        scores: dict[str, ReferenceScore] = {}
+        if ref is not None and reference is not None:
+            audio = np.concatenate(kept) if kept else np.zeros((0, receiver.audio_channels), np.float32)
+            names = SIDEBAND_NAMES if receiver.audio_channels == 2 else ("audio",)
+            scores = _scores(audio, receiver.audio_rate_hz, ref[0], ref[1], reference, names)
         return MeasureResult(receiver.report(), CaptureSummary.of(cap),
-                             SelectionSummary.of(cap, selection))
+                             SelectionSummary.of(cap, selection), scores,
+                             None if reference is None else str(reference))
 
 
 @dataclass(frozen=True)
@@ -134,6 +184,8 @@ class ChannelMeasurement:
     audio: AudioQualitySummary | None
     activity: tuple[ActivitySegment, ...]
     report: dict
+    reference: dict = field(default_factory=dict)
+    """Scores against the reference (:class:`~iqsift.measure.ReferenceScore`), by audio channel name."""
 
     def to_dict(self) -> dict[str, Any]:
         """The JSON report."""
@@ -152,6 +204,7 @@ def measure_channel(
     duration: Any = None,
     nonfinite: str = "error",
     ppm: float | None = None,
+    reference: Any = None,
 ) -> ChannelMeasurement:
     """Measure one channel of a capture in one streaming pass (the library form of ``iqsift measure``).
 
@@ -173,6 +226,8 @@ def measure_channel(
         The window to analyse (see :meth:`Capture.select`).
     ppm : float, optional
         The receiver's reference error (ppm, positive: fast), corrected for (see :func:`demod_file`).
+    reference : path, optional
+        The transmitted message: adds ``stoi``, ``estoi`` and ``segmental_snr_db`` (see :func:`measure_file`).
 
     Raises
     ------
@@ -181,9 +236,17 @@ def measure_channel(
     """
     result = measure_file(capture, channel, tone_hz=tone_hz, weighting=weighting, x_db=x_db,
                           threshold_db=threshold_db, start=start, duration=duration,
-                          allow_nonfinite=nonfinite == "zero", ppm=ppm)
+                          allow_nonfinite=nonfinite == "zero", ppm=ppm, reference=reference)
     report = result.receiver
     analysis = report.analysis
     assert analysis is not None  # measure_file analyses
     return ChannelMeasurement(dict(report.channel), analysis.carrier, analysis.modulation, analysis.bandwidth,
-                              analysis.audio, analysis.activity, report.to_dict())
+                              analysis.audio, analysis.activity, _report(result), dict(result.reference))
+
+
+def _report(result: MeasureResult) -> dict[str, Any]:
+    """The receiver's report with the reference scores merged in (without the capture stamp)."""
+    out = result.to_dict()
+    for key in ("schema", "iqsift_version", "capture", "selection"):
+        out.pop(key, None)
+    return out

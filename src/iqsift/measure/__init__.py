@@ -27,6 +27,7 @@ from .audio import AudioQualityResult, audio_quality
 from .bandwidth import BandwidthResult, measure_bandwidth, occupied_bandwidth, x_db_bandwidth
 from .carrier import CarrierAccumulator, CarrierResult, estimate_carrier
 from .modulation import ModulationResult, measure_depth, sideband_levels_dbc
+from .reference import Alignment, ReferenceScore, align_reference, score_reference, segmental_snr_db
 from .results import Reportable
 from .sections import (
     AnalysisResult,
@@ -39,6 +40,11 @@ from .sinefit import SineFitResult, sine_fit
 from .weighting import WEIGHTINGS, Weighting, a_weight_db, check_weighting, psophometric_weight_db, weight_db
 
 __all__ = [
+    "Alignment",
+    "ReferenceScore",
+    "align_reference",
+    "score_reference",
+    "segmental_snr_db",
     "CarrierResult",
     "CarrierAccumulator",
     "estimate_carrier",

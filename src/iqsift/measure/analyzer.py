@@ -100,6 +100,11 @@ class ChannelAnalyzer:
         The channel's passband relative to the carrier (Hz), for the spectral noise-floor estimate.
     time_offset_s : float
         Capture time of the first sample fed (s): activity times are reported as capture times.
+    find_tone : bool
+        Without ``tone_hz``, measure the audio figures at the strongest tone of each window
+        (:func:`~iqsift.measure.audio_quality`) instead of leaving them out.
+    audio_reason : str, optional
+        Why the audio section is empty when it is not measured (default: no test tone given).
 
     Raises
     ------
@@ -123,6 +128,8 @@ class ChannelAnalyzer:
         activity: dict | None = None,
         passband_hz: tuple[float, float] | None = None,
         time_offset_s: float = 0.0,
+        find_tone: bool = False,
+        audio_reason: str | None = None,
     ) -> None:
         self.rate = checks.positive("channel_rate_hz", channel_rate_hz)
         self.audio_rate = checks.positive("audio_rate_hz", audio_rate_hz)
@@ -130,6 +137,8 @@ class ChannelAnalyzer:
         self.nominal_hz = nominal_hz
         self.passband_hz = passband_hz if passband_hz is not None else (-bandwidth_hz / 2, bandwidth_hz / 2)
         self.tone_hz = None if tone_hz is None else self._check_tone(tone_hz)
+        self.find_tone = bool(find_tone)
+        self._audio_reason = audio_reason
         self.weighting = check_weighting(weighting)
         self.x_db = checks.positive("x_db", x_db)
         window_s = checks.positive("window_s", window_s)
@@ -206,7 +215,7 @@ class ChannelAnalyzer:
 
     def feed_audio(self, a: np.ndarray) -> None:
         """Audio block (float)."""
-        if self.tone_hz is None or a.size == 0:
+        if (self.tone_hz is None and not self.find_tone) or a.size == 0:
             return
         self._result = None
         a = np.asarray(a, dtype=np.float64)
@@ -268,6 +277,11 @@ class ChannelAnalyzer:
         if self._result is None:
             self._result = self._measure()
         return self._result
+
+    def audio_result(self) -> tuple[AudioQualitySummary | None, str | None]:
+        """The audio section alone and, when it is empty, why (see :meth:`result`)."""
+        result = self.result()
+        return result.audio, result.reasons.get("audio")
 
     def _measure(self) -> AnalysisResult:
         if self._env_n:
@@ -377,8 +391,8 @@ class ChannelAnalyzer:
         return ChannelBandwidthResult.of(measured)
 
     def _audio_section(self) -> AudioQualitySummary | None:
-        if self.tone_hz is None:
-            self._reasons["audio"] = "not measured: no test tone given (tone_hz)"
+        if self.tone_hz is None and not self.find_tone:
+            self._reasons["audio"] = self._audio_reason or "not measured: no test tone given (tone_hz)"
             return None
         window_s = self._awin / self.audio_rate
         chosen: list[AudioQualityResult] = (

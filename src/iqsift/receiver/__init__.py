@@ -10,12 +10,14 @@ The chain (DESIGN.md data flow)::
 * :mod:`.design` -- :class:`ChannelDesign`, :func:`design_channel`: everything fixed before the first sample.
 * :mod:`.front` -- the fast-convolution and polyphase front ends.
 * :mod:`.back` -- :class:`ChannelBackEnd`, the detector-to-audio chain.
+* :mod:`.isb` -- :class:`IsbBackEnd`, the two sideband chains of an independent-sideband channel.
 * :mod:`.taps` -- :class:`StageTaps`, the spectrum accumulators behind the stage plots.
 * :mod:`.receiver` -- :class:`Receiver`: the chain with its observers.
 """
 
 from .back import AM_AUDIO_GAIN, ChannelBackEnd
 from .design import ChannelDesign, design_channel, fft_decimation
+from .isb import SIDEBAND_NAMES, IsbBackEnd
 from .front import FftFrontEnd, PolyphaseFrontEnd, bank_channel, front_end_for
 from .receiver import EDGE_FADE_S, Receiver, ReceiverReport, ReceiverResult
 from .taps import TAP_NAMES, StageTaps, input_tap
@@ -26,6 +28,8 @@ __all__ = [
     "ChannelDesign",
     "EDGE_FADE_S",
     "FftFrontEnd",
+    "IsbBackEnd",
+    "SIDEBAND_NAMES",
     "PolyphaseFrontEnd",
     "Receiver",
     "ReceiverReport",

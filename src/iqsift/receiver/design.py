@@ -27,6 +27,7 @@ from ..dsp.filters import (
     filter_summary,
     plan_decimation,
 )
+from ..dsp.sidebands import SidebandSplit, design_sideband_split
 from ..errors import ParameterError
 from ..units import format_hz
 
@@ -96,6 +97,21 @@ class ChannelDesign:
     fft_hop: int | None = None
     transition_hz: float | None = None
     transition_reason: str | None = None
+
+    @functools.cached_property
+    def sideband_split(self) -> SidebandSplit | None:
+        """ISB channels: the one-sided band-pass pair that separates the sidebands at the channel rate, over
+        the channel's audio band (without one: 100 Hz, so the split's 200 Hz transition still puts the other
+        sideband's edge in the stopband, up to the sideband's top clear of half the channel rate); else None."""
+        if self.channel.mode != "isb":
+            return None
+        band = self.channel.audio_band
+        if band:
+            low, high = float(band[0]), float(band[1])
+        else:
+            low = 100.0
+            high = min(self.channel.bandwidth_hz / 2, self.channel_rate_hz / 2 - 2 * low - 1.0)
+        return design_sideband_split(self.channel_rate_hz, low, high)
 
     def with_bank(self, fft_size: int, hop: int) -> "ChannelDesign":
         """The same design run in a shared bank of transform length ``fft_size`` and ``hop``."""
@@ -212,6 +228,10 @@ class ChannelDesign:
                 entry["mix_hz"] = self.filter_centre_hz if stage.index == 0 else None
                 out.append(entry)
         ch_rate = self.channel_rate_hz
+        if self.sideband_split is not None:
+            split = self.sideband_split.as_dict()
+            split["macs_per_chain_input_sample"] = split["macs_per_input_sample"] / self.decimation
+            out.append(split)
         out.append({"name": f"detector ({self.channel.mode})", "kind": "detector", "rate_in_hz": ch_rate,
                     "rate_out_hz": ch_rate})
         band = self.channel.audio_band

@@ -21,8 +21,10 @@ import numpy as np
 from ..channel import Channel
 from ..dsp.post import Squelch
 from ..dsp.stages import Stage, TapPoint
+from ..jsonable import to_jsonable
 from ..errors import IqsiftWarning, ParameterError
 from .back import ChannelBackEnd
+from .isb import SIDEBAND_NAMES, IsbBackEnd
 from .design import ChannelDesign, design_channel
 from .front import front_end_for
 from .taps import TAP_NAMES, StageTaps
@@ -71,6 +73,9 @@ class ReceiverReport:
     audio_samples: int
     audio_rate_hz: float
     analysis: "AnalysisResult | None" = None
+    sideband_audio: "Mapping[str, Any] | None" = None
+    """ISB channels: the audio figures per sideband, ``{"lower": {...} or None, "upper": ...}``, with
+    ``"<side>_reason"`` for an empty one."""
 
     def to_dict(self) -> dict[str, Any]:
         """Stable JSON keys (DESIGN.md report vocabulary); the analysis sections at the top level."""
@@ -86,6 +91,8 @@ class ReceiverReport:
         }
         if self.analysis is not None:
             out.update(self.analysis.to_dict())
+        if self.sideband_audio is not None:
+            out["audio_sidebands"] = to_jsonable(dict(self.sideband_audio))
         return out
 
 
@@ -182,7 +189,10 @@ class Receiver:
         self.rate_hz = float(design.rate_hz)
         self.center_hz = center_hz
         self.front = front
-        self.back = ChannelBackEnd(design, design.front_end_delay_s(), agc=agc, detector_options=detector_options)
+        back = IsbBackEnd if self.channel.mode == "isb" else ChannelBackEnd
+        self.back = back(design, design.front_end_delay_s(), agc=agc, detector_options=detector_options)
+        self.audio_channels = 2 if self.channel.mode == "isb" else 1
+        self.sideband_analyzers: "dict[str, ChannelAnalyzer]" = {}
         self.audio_rate_hz = self.back.audio_rate_hz
         self.taps = None
         self.analyzer = None
@@ -261,13 +271,30 @@ class Receiver:
         nominal = self.channel.absolute_frequency(self.center_hz)
         if nominal is None:
             nominal = self.design.carrier_offset_hz
+        isb = isinstance(self.back, IsbBackEnd)
+        main = dict(options)
+        if isb:  # the audio figures are per sideband (audio_sidebands)
+            main.update(tone_hz=None, audio_reason="independent sidebands: measured per sideband (audio_sidebands)")
         self.analyzer = ChannelAnalyzer(
             self.design.channel_rate_hz, self.audio_rate_hz, self.channel.mode, self.channel.bandwidth_hz,
-            nominal, passband_hz=self.channel.passband_hz, **options,
+            nominal, passband_hz=self.channel.passband_hz, **main,
         )
         self.on_baseband(self.analyzer.feed_activity)  # activity keeps the capture's time base
         self.back.on_settled_baseband(self.analyzer.feed_baseband)  # measurements leave the warm-up out
-        self.on_audio(self.analyzer.feed_audio)
+        if not isb:
+            self.on_audio(self.analyzer.feed_audio)
+            return self
+        assert isinstance(self.back, IsbBackEnd)
+        split = self.back.split
+        for column, (name, mode) in enumerate(zip(SIDEBAND_NAMES, ("lsb", "usb"))):
+            sign = -1.0 if mode == "lsb" else 1.0
+            passband = tuple(sorted((sign * split.low_hz, sign * split.high_hz)))
+            side = ChannelAnalyzer(self.design.channel_rate_hz, self.audio_rate_hz, mode,
+                                   split.high_hz - split.low_hz, nominal, passband_hz=passband,  # type: ignore[arg-type]
+                                   find_tone=True, **options)
+            self.on_baseband(side.feed_activity)
+            self.on_audio(_column_feeder(side, column))
+            self.sideband_analyzers[name] = side
         return self
 
     # -- streaming -----------------------------------------------------------------------------
@@ -318,11 +345,11 @@ class Receiver:
         """Deliver audio from the back end: edge fades, squelch (which may hold audio back until it knows
         the noise floor), audio observers; returns the audio delivered now."""
         audio = self._fade(audio, at_end)
-        self._produced += audio.size
+        self._produced += audio.shape[0]
         if self.squelch is not None:
             audio = self.squelch.apply(audio, final=at_end)
         self._audio_tap.process(audio)
-        self.audio_out += audio.size
+        self.audio_out += audio.shape[0]
         return audio
 
     def emit_last(self, audio: np.ndarray) -> np.ndarray:
@@ -330,8 +357,8 @@ class Receiver:
         self._warn_if_short()
         audio = np.asarray(audio, dtype=np.float32)
         need = max(0, self.expected_audio_samples - self._produced)
-        if audio.size < need:
-            audio = np.concatenate([audio, np.zeros(need - audio.size, np.float32)])
+        if audio.shape[0] < need:
+            audio = np.concatenate([audio, np.zeros((need - audio.shape[0], *audio.shape[1:]), np.float32)])
         return self.emit(audio[:need], at_end=True)
 
     def _fade(self, audio: np.ndarray, at_end: bool) -> np.ndarray:
@@ -342,16 +369,18 @@ class Receiver:
         """
         n_fade = int(round(EDGE_FADE_S * self.audio_rate_hz))
         head = n_fade - self._produced
-        if (head <= 0 and not at_end) or not audio.size:
+        n = audio.shape[0]
+        if (head <= 0 and not at_end) or not n:
             return audio
         audio = np.array(audio, dtype=np.float32, copy=True)
-        if head > 0 and audio.size:
-            k = np.arange(self._produced, self._produced + min(head, audio.size))
-            audio[: k.size] *= (0.5 - 0.5 * np.cos(np.pi * (k + 0.5) / n_fade)).astype(np.float32)
-        if at_end and audio.size:
-            m = min(n_fade, audio.size)
+        shape = (-1,) + (1,) * (audio.ndim - 1)  # one gain per frame (row) of multichannel audio
+        if head > 0:
+            k = np.arange(self._produced, self._produced + min(head, n))
+            audio[: k.size] *= (0.5 - 0.5 * np.cos(np.pi * (k + 0.5) / n_fade)).astype(np.float32).reshape(shape)
+        if at_end:
+            m = min(n_fade, n)
             k = np.arange(m)[::-1]
-            audio[-m:] *= (0.5 - 0.5 * np.cos(np.pi * (k + 0.5) / n_fade)).astype(np.float32)
+            audio[-m:] *= (0.5 - 0.5 * np.cos(np.pi * (k + 0.5) / n_fade)).astype(np.float32).reshape(shape)
         return audio
 
     def _warn_if_short(self) -> None:
@@ -371,10 +400,10 @@ class Receiver:
         """Run over an iterable of IQ blocks, yielding audio blocks; flushes at the end."""
         for block in blocks:
             out = self.process(block)
-            if out.size:
+            if out.shape[0]:
                 yield out
         tail = self.flush()
-        if tail.size:
+        if tail.shape[0]:
             yield tail
 
     def run(self, capture: "Capture | None" = None, samples: np.ndarray | None = None, *,
@@ -394,7 +423,7 @@ class Receiver:
                 kwargs["block_size"] = block_size
             blocks = capture.blocks(**kwargs)
         pieces = list(self.stream(blocks))
-        audio = np.concatenate(pieces) if pieces else np.zeros(0, np.float32)
+        audio = np.concatenate(pieces) if pieces else np.zeros((0, 2) if self.audio_channels == 2 else 0, np.float32)
         return ReceiverResult(audio, self.audio_rate_hz, self.report(), self.spectra())
 
     # -- results -------------------------------------------------------------------------------
@@ -429,4 +458,25 @@ class Receiver:
             audio_samples=self.audio_out,
             audio_rate_hz=self.audio_rate_hz,
             analysis=None if self.analyzer is None else self.analyzer.result(),
+            sideband_audio=self._sideband_audio(),
         )
+
+    def _sideband_audio(self) -> dict[str, Any] | None:
+        if not self.sideband_analyzers:
+            return None
+        out: dict[str, Any] = {}
+        for name, side in self.sideband_analyzers.items():
+            audio, reason = side.audio_result()
+            out[name] = audio
+            if reason is not None:
+                out[f"{name}_reason"] = reason
+        return out
+
+
+def _column_feeder(analyzer: "ChannelAnalyzer", column: int) -> Observer:
+    """An audio observer feeding one column of multichannel audio to ``analyzer``."""
+
+    def feed(audio: np.ndarray) -> None:
+        analyzer.feed_audio(audio[:, column])
+
+    return feed
