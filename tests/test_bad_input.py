@@ -234,3 +234,28 @@ def test_errors_speak_in_the_users_words(run_cli, tmp_path, args, fragments):
     line = assert_one_line_error(run_cli(*args), *fragments)
     assert not any(word in line for word in LIBRARY_WORDS), line
     assert not (tmp_path / "OUT.wav").exists()
+
+
+def test_paths_that_cannot_be_used_are_named_for_what_they_are(run_cli, tmp_path, monkeypatch):
+    # Issue [2/6] item 11: "-o .wav" said "must end in .wav", a path under a regular file "folder does not exist",
+    # and a symbolic link loop "no such file".
+    monkeypatch.chdir(tmp_path)
+    capture = Path(__file__).resolve().parents[1] / "sample_captures" / "vhf_airband.sigmf-meta"
+    (tmp_path / "afile").write_text("x")
+    (tmp_path / "loop1").symlink_to("loop2")
+    (tmp_path / "loop2").symlink_to("loop1")
+    (tmp_path / "dangling").symlink_to("nothere")
+    demod = ("demod", capture, "--freq", "124.15M", "-e", "6K00A3E", "--duration", "0.1", "-o")
+    cases = [
+        ((*demod, ".wav"), ".wav: give the audio file a name before its extension, e.g. audio.wav"),
+        ((*demod, "afile/x.wav"), "afile/x.wav: afile is a file, not a folder"),
+        ((*demod, "loop1/x.wav"), "loop1/x.wav: loop1 is a symbolic link that leads round in a loop"),
+        ((*demod, "nodir/x.wav"), "nodir/x.wav: the folder nodir does not exist"),
+        (("info", "loop1"), "loop1: is a symbolic link that leads round in a loop"),
+        (("info", "dangling"), "dangling: is a symbolic link to nothere, which does not exist"),
+    ]
+    before = sorted(p.name for p in tmp_path.iterdir())
+    for args, message in cases:
+        status, out, err = run_cli(*args)
+        assert (status, err) == (2, f"iqsift: error: {message}\n"), args
+    assert sorted(p.name for p in tmp_path.iterdir()) == before  # nothing written

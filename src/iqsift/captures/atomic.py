@@ -17,6 +17,7 @@ never leaves half its files.
 from __future__ import annotations
 
 import contextlib
+import errno
 import os
 import signal
 import tempfile
@@ -111,10 +112,28 @@ def check_output_path(path: str | os.PathLike[str], force: bool = False, protect
         raise ParameterError(f"{path}: is a directory; give a file name for the output")
     parent = path.parent if str(path.parent) else Path(".")
     if not parent.is_dir():
-        raise ParameterError(f"{path}: the folder {parent} does not exist")
+        raise ParameterError(f"{path}: {why_not_a_folder(parent)}")
     if path.exists() and not force:
         raise OutputExistsError(f"{path}: exists; pass force to overwrite it", parameters=("force",))
     return path
+
+
+def why_not_a_folder(folder: Path) -> str:
+    """Why ``folder`` cannot hold a new file, in the user's words: missing, a file, or a link loop."""
+    for level in (*reversed(folder.parents), folder):
+        if str(level) in ("", "."):
+            continue
+        try:
+            os.stat(level)
+        except FileNotFoundError:
+            return f"the folder {level} does not exist"
+        except OSError as exc:
+            if exc.errno == errno.ELOOP:
+                return f"{level} is a symbolic link that leads round in a loop"
+            return f"{level}: {exc.strerror}"
+        if not level.is_dir():
+            return f"{level} is a file, not a folder"
+    return f"the folder {folder} does not exist"
 
 
 class OutputSet:
@@ -184,7 +203,7 @@ class OutputSet:
             if not parents:
                 break
         if missing and not parents and not (folder.parent if str(folder.parent) else Path(".")).is_dir():
-            raise ParameterError(f"{folder}: the folder {folder.parent} does not exist")
+            raise ParameterError(f"{folder}: {why_not_a_folder(folder.parent)}")
         with signals_deferred():
             for level in reversed(missing):  # top down
                 level.mkdir()

@@ -145,6 +145,9 @@ class AudioWriter:
     ) -> None:
         self.path = Path(path)
         fmt = AUDIO_FORMATS.get(self.path.suffix.lower())
+        if fmt is None and self.path.name.lower() in AUDIO_FORMATS:
+            raise ParameterError(f"{self.path}: give the audio file a name before its extension, "
+                                 f"e.g. {self.path.with_name('audio' + self.path.name)}")
         if fmt is None:
             raise ParameterError(f"{self.path}: audio output must end in .wav or .flac")
         if abs(rate_hz - round(rate_hz)) > 1e-6 or rate_hz < 1:

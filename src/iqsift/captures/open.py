@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import errno
 import os
 from pathlib import Path
 
@@ -94,6 +95,13 @@ def open_capture(
             raise CaptureError(f"{path}: is a directory, not a capture file")
         return read_sigmf(path, rate=rate_hz, center=center_hz, strict=strict, verify=verify)
     if not path.exists():
+        if path.is_symlink():
+            try:
+                os.stat(path)
+            except OSError as exc:
+                if exc.errno == errno.ELOOP:
+                    raise CaptureError(f"{path}: is a symbolic link that leads round in a loop") from None
+            raise CaptureError(f"{path}: is a symbolic link to {os.readlink(path)}, which does not exist")
         raise CaptureError(f"{path}: no such file")
     if path.is_dir():
         raise CaptureError(f"{path}: is a directory, not a capture file")
