@@ -58,7 +58,6 @@ from typing import Any, Callable, Iterator, NamedTuple
 
 import numpy as np
 import scipy.fft
-import scipy.signal
 
 from . import checks
 from .errors import ParameterError
@@ -79,6 +78,15 @@ _POWER_FLOOR = 10.0 ** (DB_FLOOR / 10.0)
 
 # Samples framed at once per batched FFT (bounds the temporary memory of one feed).
 _BATCH_SAMPLES = 1 << 21
+
+
+def _fft_workers() -> int:
+    """Threads for the segment transforms: the CPUs this process may use, at most 4."""
+    try:
+        available = len(os.sched_getaffinity(0))
+    except (AttributeError, OSError):  # not on Linux
+        available = os.cpu_count() or 1
+    return max(1, min(4, available))
 
 _UNITS = {"density": "dBFS/Hz", "spectrum": "dBFS"}
 
@@ -296,6 +304,8 @@ class _SegmentStream:
         self._onesided_request = onesided
         if isinstance(window, str) or (isinstance(window, tuple) and window and isinstance(window[0], str)):
             try:
+                import scipy.signal  # here only: the window design is its one use (start-up stays light)
+
                 win = scipy.signal.get_window(window, self._nperseg, fftbins=True)
             except (ValueError, TypeError) as exc:
                 raise ParameterError(f"window: scipy.signal.get_window refused {window!r} ({exc})") from None
@@ -406,10 +416,11 @@ class _SegmentStream:
             if self._detrend:
                 seg = seg - seg.mean(axis=1, keepdims=True)
             seg = seg * self._win
+            # rows are independent transforms: spreading them over threads gives the same numbers
             if self._onesided:
-                spec = scipy.fft.rfft(seg, axis=1)
+                spec = scipy.fft.rfft(seg, axis=1, overwrite_x=True, workers=_fft_workers())
             else:
-                spec = scipy.fft.fft(seg, axis=1)
+                spec = scipy.fft.fft(seg, axis=1, overwrite_x=True, workers=_fft_workers())
             self._segments_seen += seg.shape[0]
             yield spec.real**2 + spec.imag**2
 
