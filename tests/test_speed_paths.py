@@ -130,3 +130,23 @@ def test_chi2_quantiles_from_scipy_special_equal_scipy_stats(nu):
     assert floor_median_bias(nu) == float(scipy.stats.chi2.median(nu) / nu)
     assert float(2 * scipy.special.gammaincinv(nu / 2, 0.25)) == float(scipy.stats.chi2.ppf(0.25, nu))
     assert float(scipy.special.chdtrc(nu, 1.3 * nu)) == float(scipy.stats.chi2.sf(1.3 * nu, nu))
+
+
+@pytest.mark.parametrize("onesided", [False, True])
+def test_split_threaded_transforms_equal_one_call(monkeypatch, onesided):
+    """Rows transformed a few at a time on several threads == one single-threaded call per batch, bit for bit."""
+    import iqsift.spectra as spectra
+
+    rng = np.random.default_rng(9)
+    x = rng.standard_normal(300000) + (0 if onesided else 1j * rng.standard_normal(300000))
+
+    def run():
+        acc = WelchAccumulator(RATE_HZ, nperseg=4096, onesided=onesided)
+        for part in np.array_split(x, 3):
+            acc.feed(part)
+        return acc.result().values_db
+
+    split = run()
+    monkeypatch.setattr(spectra, "_FFT_SAMPLES", 1 << 30)
+    monkeypatch.setattr(spectra, "_fft_workers", lambda: 1)
+    np.testing.assert_array_equal(split, run())

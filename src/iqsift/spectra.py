@@ -78,6 +78,8 @@ _POWER_FLOOR = 10.0 ** (DB_FLOOR / 10.0)
 
 # Samples framed at once per batched FFT (bounds the temporary memory of one feed).
 _BATCH_SAMPLES = 1 << 21
+_FFT_SAMPLES = 1 << 18
+"""Samples transformed per FFT call inside a batch (bounds the complex128 temporaries to 4 MiB)."""
 
 
 def _fft_workers() -> int:
@@ -394,12 +396,26 @@ class _SegmentStream:
         self._samples += x.size
         return x
 
+    def _joined(self, block: Any) -> np.ndarray | None:
+        """The unfinished tail followed by ``block``, converted once into one buffer (no extra copy)."""
+        x = np.asarray(block)
+        if not self._tail.size:
+            return self._prepare(x)
+        if x.ndim == 1 and x.size and x.dtype.kind in "biufc" and self._onesided is False:
+            # the common two-sided case: convert straight into the joined buffer
+            self._samples += x.size
+            buf = np.empty(self._tail.size + x.size, np.complex128)
+            buf[: self._tail.size] = self._tail
+            buf[self._tail.size :] = x
+            return buf
+        prepared = self._prepare(x)
+        return None if prepared is None else np.concatenate([self._tail, prepared])
+
     def periodograms(self, block: Any, limit: int | None = None) -> Iterator[np.ndarray]:
         """Raw periodogram rows of every segment completed by ``block`` (at most ``limit``)."""
-        x = self._prepare(block)
-        if x is None:
+        buf = self._joined(block)
+        if buf is None:
             return
-        buf = np.concatenate([self._tail, x]) if self._tail.size else x
         n, nps, step = buf.size, self._nperseg, self._step
         nseg = (n - nps) // step + 1 if n >= nps else 0
         if limit is not None:
@@ -412,17 +428,32 @@ class _SegmentStream:
         frames = np.lib.stride_tricks.sliding_window_view(buf, nps)[::step]
         batch = max(1, _BATCH_SAMPLES // nps)
         for start in range(0, nseg, batch):
-            seg = frames[start : min(start + batch, nseg)]
+            yield self._batch_power(frames[start : min(start + batch, nseg)])
+
+    def _batch_power(self, frames: np.ndarray) -> np.ndarray:
+        """|FFT(window · segment)|² of each row of ``frames`` (float64, rows = segments).
+
+        The rows are independent transforms: they are done a few at a time (a bounded temporary)
+        and spread over threads, which gives the same numbers as one call over the whole batch.
+        """
+        rows = frames.shape[0]
+        power = np.empty((rows, self._nbins()), np.float64)
+        step = max(1, _FFT_SAMPLES // self._nperseg)
+        workers = _fft_workers()
+        for first in range(0, rows, step):
+            seg = frames[first : first + step]
             if self._detrend:
                 seg = seg - seg.mean(axis=1, keepdims=True)
             seg = seg * self._win
-            # rows are independent transforms: spreading them over threads gives the same numbers
             if self._onesided:
-                spec = scipy.fft.rfft(seg, axis=1, overwrite_x=True, workers=_fft_workers())
+                spec = scipy.fft.rfft(seg, axis=1, overwrite_x=True, workers=workers)
             else:
-                spec = scipy.fft.fft(seg, axis=1, overwrite_x=True, workers=_fft_workers())
-            self._segments_seen += seg.shape[0]
-            yield spec.real**2 + spec.imag**2
+                spec = scipy.fft.fft(seg, axis=1, overwrite_x=True, workers=workers)
+            out = power[first : first + step]
+            np.multiply(spec.real, spec.real, out=out)  # |X|² = re² + im²
+            out += np.multiply(spec.imag, spec.imag)
+        self._segments_seen += rows
+        return power
 
     def _finish(self, mean_raw: np.ndarray, scaling: str) -> tuple[np.ndarray, np.ndarray]:
         """Scale a raw mean periodogram (last axis = bins); returns (freqs_hz, power)."""
