@@ -150,3 +150,19 @@ def test_split_threaded_transforms_equal_one_call(monkeypatch, onesided):
     monkeypatch.setattr(spectra, "_FFT_SAMPLES", 1 << 30)
     monkeypatch.setattr(spectra, "_fft_workers", lambda: 1)
     np.testing.assert_array_equal(split, run())
+
+
+@pytest.mark.parametrize("detrend", [None, "constant"])
+def test_narrow_input_kept_until_windowing_gives_the_same_spectrum(detrend):
+    """complex64 blocks (kept as complex64 until windowed) == the same blocks widened to complex128 first."""
+    rng = np.random.default_rng(4)
+    x = (rng.standard_normal(100003) + 1j * rng.standard_normal(100003)).astype(np.complex64)
+
+    def run(blocks):
+        acc = WelchAccumulator(RATE_HZ, nperseg=2048, detrend=detrend)
+        for part in blocks:
+            acc.feed(part)
+        return acc.result().values_db
+
+    parts = np.array_split(x, 5)
+    np.testing.assert_array_equal(run(parts), run([p.astype(np.complex128) for p in parts]))

@@ -388,28 +388,22 @@ class _SegmentStream:
                         "(real-stream) spectrum; use onesided=False"
                     )
                 x = x.real
-            x = x.astype(np.float64, copy=False)
-            if self._tail.dtype != np.float64:
+            # float32 stays float32 until a segment is windowed (the float64 product is the same)
+            if x.dtype not in (np.float32, np.float64):
+                x = x.astype(np.float64)
+            if self._tail.dtype.kind == "c":
                 self._tail = self._tail.real.astype(np.float64)
-        else:
-            x = x.astype(np.complex128, copy=False)
+        elif x.dtype not in (np.complex64, np.complex128):
+            x = x.astype(np.complex128)
         self._samples += x.size
         return x
 
     def _joined(self, block: Any) -> np.ndarray | None:
-        """The unfinished tail followed by ``block``, converted once into one buffer (no extra copy)."""
-        x = np.asarray(block)
-        if not self._tail.size:
-            return self._prepare(x)
-        if x.ndim == 1 and x.size and x.dtype.kind in "biufc" and self._onesided is False:
-            # the common two-sided case: convert straight into the joined buffer
-            self._samples += x.size
-            buf = np.empty(self._tail.size + x.size, np.complex128)
-            buf[: self._tail.size] = self._tail
-            buf[self._tail.size :] = x
-            return buf
-        prepared = self._prepare(x)
-        return None if prepared is None else np.concatenate([self._tail, prepared])
+        """The unfinished tail followed by ``block`` (in the narrower of their types: exact)."""
+        prepared = self._prepare(block)
+        if prepared is None or not self._tail.size:
+            return prepared
+        return np.concatenate([self._tail, prepared])
 
     def periodograms(self, block: Any, limit: int | None = None) -> Iterator[np.ndarray]:
         """Raw periodogram rows of every segment completed by ``block`` (at most ``limit``)."""
@@ -443,8 +437,9 @@ class _SegmentStream:
         for first in range(0, rows, step):
             seg = frames[first : first + step]
             if self._detrend:
+                seg = seg.astype(np.float64 if self._onesided else np.complex128)
                 seg = seg - seg.mean(axis=1, keepdims=True)
-            seg = seg * self._win
+            seg = seg * self._win  # float64 window: the product is float64 / complex128
             if self._onesided:
                 spec = scipy.fft.rfft(seg, axis=1, overwrite_x=True, workers=workers)
             else:
