@@ -49,36 +49,37 @@ def prefetched(source: Iterator[T], depth: int = 1) -> Iterator[T]:
         The plain iterator (e.g. a capture's block generator). It runs entirely on the reader
         thread, which also closes it.
     depth : int
-        Items the reader may have finished ahead of the consumer (>= 1).
+        Items the reader may read ahead of the one the consumer holds (>= 1): with 1, the reader
+        reads item k+1 while the consumer works on item k, so at most two items exist at a time.
 
     Notes
     -----
     An exception raised by ``source`` is raised here, after the items produced before it. When the
     consumer stops early (``close()``, an exception, an interrupt) the reader is told to stop and
-    is joined; it holds no more than one more item. Producer/consumer with a bounded buffer
+    is joined (it finishes the item it is reading first). Producer/consumer with a bounded buffer
     (common practice; Python's :class:`queue.Queue`).
     """
-    q: queue.Queue[object] = queue.Queue(maxsize=max(1, int(depth)))
+    q: queue.Queue[object] = queue.Queue()
+    slots = threading.Semaphore(max(1, int(depth)))  # items read but not yet taken by the consumer
     stop = threading.Event()
 
-    def put(item: object) -> bool:
+    def wait_for_slot() -> bool:
         while not stop.is_set():
-            try:
-                q.put(item, timeout=0.05)
-                return True
-            except queue.Full:
-                continue
+            if slots.acquire(timeout=0.05):
+                return not stop.is_set()
         return False
 
     def run() -> None:
         try:
-            for item in source:
-                if not put(item):
-                    break
-            else:
-                put(_DONE)
+            while wait_for_slot():
+                try:
+                    item = next(source)
+                except StopIteration:
+                    q.put(_DONE)
+                    return
+                q.put(item)
         except BaseException as exc:  # handed over to the consumer, raised there
-            put(_Failure(exc))
+            q.put(_Failure(exc))
         finally:
             close = getattr(source, "close", None)
             if close is not None:
@@ -93,12 +94,8 @@ def prefetched(source: Iterator[T], depth: int = 1) -> Iterator[T]:
                 return
             if isinstance(item, _Failure):
                 raise item.exc
+            slots.release()  # the consumer is done with the previous item: read the next one meanwhile
             yield item  # type: ignore[misc]
     finally:
         stop.set()
-        while True:  # free the reader if it waits on a full queue
-            try:
-                q.get_nowait()
-            except queue.Empty:
-                break
         reader.join()
