@@ -22,6 +22,7 @@ PLANS = {
     "demod": (["bench_demod.py"], ["--seconds", "10"], ["--seconds", "10", "--long-seconds", "20"]),
     "channels": (["bench_channels.py"], ["--seconds", "10"], ["--seconds", "4", "--plain-channels", "1"]),
     "info": (["bench_info_memory.py"], ["--gib", "4"], ["--gib", "1"]),
+    "whole": (["bench_whole.py"], ["--seconds", "20"], ["--seconds", "4", "--repeat", "1"]),
 }
 
 
@@ -31,7 +32,7 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--workers", type=int, default=1, help="FFT threads (demod and channels benchmarks)")
     ap.add_argument("--repeat", type=int, default=1,
                     help="runs per measurement in the demod and channels benchmarks (the fastest is kept)")
-    ap.add_argument("--only", default="demod,channels,info", help="comma-separated subset to run")
+    ap.add_argument("--only", default="demod,channels,info,whole", help="comma-separated subset to run")
     ap.add_argument("--workdir", default=None, help="folder for the generated captures (default: temp dirs)")
     ap.add_argument("--strict", action="store_true", help="exit with status 1 if any target is missed")
     args = ap.parse_args(argv)

@@ -58,7 +58,6 @@ from typing import Any, Callable, Iterator, NamedTuple
 
 import numpy as np
 import scipy.fft
-import scipy.signal
 
 from . import checks
 from .errors import ParameterError
@@ -79,6 +78,17 @@ _POWER_FLOOR = 10.0 ** (DB_FLOOR / 10.0)
 
 # Samples framed at once per batched FFT (bounds the temporary memory of one feed).
 _BATCH_SAMPLES = 1 << 21
+_FFT_SAMPLES = 1 << 18
+"""Samples transformed per FFT call inside a batch (bounds the complex128 temporaries to 4 MiB)."""
+
+
+def _fft_workers() -> int:
+    """Threads for the segment transforms: the CPUs this process may use, at most 4."""
+    try:
+        available = len(os.sched_getaffinity(0))
+    except (AttributeError, OSError):  # not on Linux
+        available = os.cpu_count() or 1
+    return max(1, min(4, available))
 
 _UNITS = {"density": "dBFS/Hz", "spectrum": "dBFS"}
 
@@ -296,6 +306,8 @@ class _SegmentStream:
         self._onesided_request = onesided
         if isinstance(window, str) or (isinstance(window, tuple) and window and isinstance(window[0], str)):
             try:
+                import scipy.signal  # here only: the window design is its one use (start-up stays light)
+
                 win = scipy.signal.get_window(window, self._nperseg, fftbins=True)
             except (ValueError, TypeError) as exc:
                 raise ParameterError(f"window: scipy.signal.get_window refused {window!r} ({exc})") from None
@@ -376,20 +388,28 @@ class _SegmentStream:
                         "(real-stream) spectrum; use onesided=False"
                     )
                 x = x.real
-            x = x.astype(np.float64, copy=False)
-            if self._tail.dtype != np.float64:
+            # float32 stays float32 until a segment is windowed (the float64 product is the same)
+            if x.dtype not in (np.float32, np.float64):
+                x = x.astype(np.float64)
+            if self._tail.dtype.kind == "c":
                 self._tail = self._tail.real.astype(np.float64)
-        else:
-            x = x.astype(np.complex128, copy=False)
+        elif x.dtype not in (np.complex64, np.complex128):
+            x = x.astype(np.complex128)
         self._samples += x.size
         return x
 
+    def _joined(self, block: Any) -> np.ndarray | None:
+        """The unfinished tail followed by ``block`` (in the narrower of their types: exact)."""
+        prepared = self._prepare(block)
+        if prepared is None or not self._tail.size:
+            return prepared
+        return np.concatenate([self._tail, prepared])
+
     def periodograms(self, block: Any, limit: int | None = None) -> Iterator[np.ndarray]:
         """Raw periodogram rows of every segment completed by ``block`` (at most ``limit``)."""
-        x = self._prepare(block)
-        if x is None:
+        buf = self._joined(block)
+        if buf is None:
             return
-        buf = np.concatenate([self._tail, x]) if self._tail.size else x
         n, nps, step = buf.size, self._nperseg, self._step
         nseg = (n - nps) // step + 1 if n >= nps else 0
         if limit is not None:
@@ -402,16 +422,33 @@ class _SegmentStream:
         frames = np.lib.stride_tricks.sliding_window_view(buf, nps)[::step]
         batch = max(1, _BATCH_SAMPLES // nps)
         for start in range(0, nseg, batch):
-            seg = frames[start : min(start + batch, nseg)]
+            yield self._batch_power(frames[start : min(start + batch, nseg)])
+
+    def _batch_power(self, frames: np.ndarray) -> np.ndarray:
+        """|FFT(window · segment)|² of each row of ``frames`` (float64, rows = segments).
+
+        The rows are independent transforms: they are done a few at a time (a bounded temporary)
+        and spread over threads, which gives the same numbers as one call over the whole batch.
+        """
+        rows = frames.shape[0]
+        power = np.empty((rows, self._nbins()), np.float64)
+        step = max(1, _FFT_SAMPLES // self._nperseg)
+        workers = _fft_workers()
+        for first in range(0, rows, step):
+            seg = frames[first : first + step]
             if self._detrend:
+                seg = seg.astype(np.float64 if self._onesided else np.complex128)
                 seg = seg - seg.mean(axis=1, keepdims=True)
-            seg = seg * self._win
+            seg = seg * self._win  # float64 window: the product is float64 / complex128
             if self._onesided:
-                spec = scipy.fft.rfft(seg, axis=1)
+                spec = scipy.fft.rfft(seg, axis=1, overwrite_x=True, workers=workers)
             else:
-                spec = scipy.fft.fft(seg, axis=1)
-            self._segments_seen += seg.shape[0]
-            yield spec.real**2 + spec.imag**2
+                spec = scipy.fft.fft(seg, axis=1, overwrite_x=True, workers=workers)
+            out = power[first : first + step]
+            np.multiply(spec.real, spec.real, out=out)  # |X|² = re² + im²
+            out += np.multiply(spec.imag, spec.imag)
+        self._segments_seen += rows
+        return power
 
     def _finish(self, mean_raw: np.ndarray, scaling: str) -> tuple[np.ndarray, np.ndarray]:
         """Scale a raw mean periodogram (last axis = bins); returns (freqs_hz, power)."""

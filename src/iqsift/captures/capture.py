@@ -23,6 +23,7 @@ from ..reference import check_ppm, reference_factor
 from ..units import TimeSpec, parse_time
 from .binary import BinarySource
 from .integrity import ChecksumPass
+from .prefetch import prefetched, reader_thread_enabled
 
 __all__ = ["Capture", "Segment", "Annotation", "SampleRange", "DEFAULT_BLOCK_SIZE"]
 
@@ -395,6 +396,16 @@ class Capture:
                 f"{self.path}: samples {start}..{start + count} are outside the capture (0..{self.samples})"
             )
         check = nonfinite != "keep" and self.can_hold_nonfinite
+        plain = self._checked_blocks(block_size, start, count, nonfinite, check)
+        if count > block_size and reader_thread_enabled():
+            # read, hash and decode on a second core while the caller works on the previous block
+            yield from prefetched(plain)
+        else:
+            yield from plain
+
+    def _checked_blocks(self, block_size: int, start: int, count: int, nonfinite: str,
+                        check: bool) -> Iterator[np.ndarray]:
+        """The blocks as read, then the checksum check (see :meth:`blocks`)."""
         read, checksum = self._reader(start, count)
         try:
             yield from self._read_blocks(read, block_size, start, count, nonfinite, check)

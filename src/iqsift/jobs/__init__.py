@@ -17,15 +17,47 @@ A capture is given as a path (the job opens and closes it) or as an opened
 JSON Schema in ``iqsift/schemas/``) and ``iqsift_version``.
 """
 
-from .batch import ActivitySegment, BatchResult, CaptureOutcome, OutputFile, batch_files
-from .common import CaptureSummary, SelectionSummary
-from .demod import DemodOutputs, DemodResult, demod_file
-from .design import DesignReport, design_report
-from .extract import ChannelResult, ExtractResult, extract_file
-from .info import InfoResult, info_file
-from .measure import WEIGHTINGS, ChannelMeasurement, MeasureResult, measure_channel, measure_file
-from .survey import SurveyReport, survey_file
-from .synth import SynthReport, synth_file
+from typing import TYPE_CHECKING, Any
+
+if TYPE_CHECKING:  # the names below are imported on first use (PEP 562): a command loads only its job
+    from .batch import ActivitySegment, BatchResult, CaptureOutcome, OutputFile, batch_files
+    from .common import CaptureSummary, SelectionSummary
+    from .demod import DemodOutputs, DemodResult, demod_file
+    from .design import DesignReport, design_report
+    from .extract import ChannelResult, ExtractResult, extract_file
+    from .info import InfoResult, info_file
+    from .measure import WEIGHTINGS, ChannelMeasurement, MeasureResult, measure_channel, measure_file
+    from .survey import SurveyReport, survey_file
+    from .synth import SynthReport, synth_file
+
+_HOMES = {
+    "ActivitySegment": "batch",
+    "BatchResult": "batch",
+    "CaptureOutcome": "batch",
+    "OutputFile": "batch",
+    "batch_files": "batch",
+    "CaptureSummary": "common",
+    "SelectionSummary": "common",
+    "DemodOutputs": "demod",
+    "DemodResult": "demod",
+    "demod_file": "demod",
+    "DesignReport": "design",
+    "design_report": "design",
+    "ChannelResult": "extract",
+    "ExtractResult": "extract",
+    "extract_file": "extract",
+    "InfoResult": "info",
+    "info_file": "info",
+    "WEIGHTINGS": "measure",
+    "ChannelMeasurement": "measure",
+    "MeasureResult": "measure",
+    "measure_channel": "measure",
+    "measure_file": "measure",
+    "SurveyReport": "survey",
+    "survey_file": "survey",
+    "SynthReport": "synth",
+    "synth_file": "synth",
+}
 
 __all__ = [
     "ActivitySegment",
@@ -55,3 +87,19 @@ __all__ = [
     "survey_file",
     "synth_file",
 ]
+
+
+def __getattr__(name: str) -> Any:
+    """Import a job's module when one of its names is first used (``iqsift demod`` never loads Dask)."""
+    home = _HOMES.get(name)
+    if home is None:
+        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+    import importlib
+
+    value = getattr(importlib.import_module(f".{home}", __name__), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__() -> list[str]:
+    return sorted(set(globals()) | set(__all__))

@@ -14,7 +14,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import scipy.ndimage
-import scipy.stats
+import scipy.special
 
 from ..emission import designator
 from ..errors import IqsiftWarning, ParameterError
@@ -70,7 +70,7 @@ def _noise_floor(p: np.ndarray, usable: np.ndarray, nu: float, dilate: int) -> n
     chunks = [c for c in np.array_split(idx, nreg) if c.size]
     centres = np.array([float(np.mean(c)) for c in chunks])
     q = 0.25
-    cq = float(scipy.stats.chi2.ppf(q, nu) / nu)
+    cq = float(2 * scipy.special.gammaincinv(nu / 2, q) / nu)  # = scipy.stats.chi2.ppf(q, nu) / nu
     cm = floor_median_bias(nu)
     first = np.array([_db(np.quantile(p[c], q) / cq) for c in chunks])
     # a region inside a wide emission reads high: pull it down to its neighbours' median
@@ -289,7 +289,7 @@ def analyse_spectra(
 
     # --- false alarms
     searched = int(np.count_nonzero(usable))
-    pfa = float(scipy.stats.chi2.sf(nu * thr * _MAX_SCALLOP**2, nu))
+    pfa = float(scipy.special.chdtrc(nu, nu * thr * _MAX_SCALLOP**2))  # = scipy.stats.chi2.sf(x, nu)
     expected = pfa * searched
     if expected > 0.01:
         warnings.warn(

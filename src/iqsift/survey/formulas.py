@@ -9,7 +9,7 @@ References: P. D. Welch, IEEE Trans. AU-15, 1967; D. B. Percival & A. T. Walden,
 from __future__ import annotations
 
 import numpy as np
-import scipy.stats
+import scipy.special
 
 from ..errors import ParameterError
 
@@ -58,7 +58,9 @@ def floor_median_bias(dof: float) -> float:
     :func:`scipy.stats.chi2.median`.
     """
     nu = float(dof)
-    return float(scipy.stats.chi2.median(nu) / nu)
+    # = scipy.stats.chi2.median(nu) / nu: the chi-square quantile 2·P⁻¹(ν/2, q) (regularised incomplete
+    # gamma inverse), the formula scipy.stats uses, without importing scipy.stats (about 1 s of start-up)
+    return float(2 * scipy.special.gammaincinv(nu / 2, 0.5) / nu)
 
 
 def hann_response(delta: float | np.ndarray) -> float | np.ndarray:
