@@ -32,7 +32,7 @@ import warnings
 from dataclasses import dataclass, replace
 from datetime import datetime, timedelta, timezone
 from pathlib import Path
-from typing import TYPE_CHECKING, Any, Iterable, Iterator, Literal, Mapping, Sequence, Union
+from typing import TYPE_CHECKING, Any, Callable, Iterable, Iterator, Literal, Mapping, Sequence, Union
 
 from .. import __version__
 from ..captures.atomic import write_atomically
@@ -41,6 +41,7 @@ from ..jsonable import dumps, to_jsonable
 from ..plan import load_plan
 from .common import Progress, check_plot_format, stamped
 from .extract import ChannelResult, ExtractResult, extract_file
+from .split import check_split, submit_capture
 
 if TYPE_CHECKING:
     from distributed import Client, Future
@@ -215,6 +216,7 @@ class CaptureOutcome:
     versions: Mapping[str, str]
     resumed: bool = False
     worker_peak_rss_mb: float | None = None
+    split: Mapping[str, Any] | None = None
 
     def to_dict(self) -> dict[str, Any]:
         """The capture's ``batch.jsonl`` line."""
@@ -228,6 +230,7 @@ class CaptureOutcome:
             "activity_segments": len(self.activity), "warnings": list(self.warnings),
             "options": dict(self.options), "timings": dict(self.timings), "worker": self.worker,
             "worker_peak_rss_mb": self.worker_peak_rss_mb, "versions": dict(self.versions), "resumed": self.resumed,
+            "split": None if self.split is None else dict(self.split),
         })
         return to_jsonable(line)
 
@@ -240,7 +243,7 @@ class CaptureOutcome:
             channels=line["channels"], activity=activity, warnings=tuple(line.get("warnings", ())),
             options=line["options"], plan_sha256=line.get("plan_sha256"), timings=line.get("timings", {}),
             worker=line.get("worker"), versions=line.get("versions", {}), resumed=True,
-            worker_peak_rss_mb=line.get("worker_peak_rss_mb"),
+            worker_peak_rss_mb=line.get("worker_peak_rss_mb"), split=line.get("split"),
         )
 
 
@@ -450,12 +453,13 @@ def _commit_folder(staging: Path, final: Path, force: bool) -> None:
         old.unlink()
 
 
-def run_capture(task: CaptureTask) -> CaptureOutcome:
+def run_capture(task: CaptureTask, produce: Callable[[Path], ExtractResult] | None = None) -> CaptureOutcome:
     """Extract one capture into ``<folder>/<stem>/`` through a staging folder (the task a worker runs).
 
     A capture iqsift refuses (unreadable, plan outside its band ...) gives a failed outcome, not an
     exception: running it again would fail the same way. Any other exception is raised for Dask to
-    retry. Either way the staging folder is removed.
+    retry. Either way the staging folder is removed. ``produce(staging)`` replaces the extraction (a
+    capture run in time pieces, :mod:`iqsift.jobs.split`).
     """
     started, t0 = _utc_now(), time.perf_counter()
     folder = Path(task.folder)
@@ -464,8 +468,9 @@ def run_capture(task: CaptureTask) -> CaptureOutcome:
     try:
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always")
-            result = _moved(extract_file(task.capture, task.plan, staging, force=False, **task.options),
-                            staging, final)
+            made = (extract_file(task.capture, task.plan, staging, force=False, **task.options) if produce is None
+                    else produce(staging))
+            result = _moved(made, staging, final)
         (staging / "report.json").write_text(dumps(result.to_dict()), encoding="utf-8")
         report = result.to_dict()
         outputs = tuple(OutputFile(str(Path(task.stem) / p.relative_to(staging)), _sha256(p))
@@ -642,21 +647,40 @@ def _collected(future: Future, task: CaptureTask) -> CaptureOutcome:
                        {"finished_utc": _utc_now()})
 
 
-def _run_on_cluster(tasks: Sequence[CaptureTask], connection: Mapping[str, Any],
-                    progress: Progress | None) -> tuple[dict[str, CaptureOutcome], dict[str, Any]]:
+def _run_on_cluster(tasks: Sequence[CaptureTask], connection: Mapping[str, Any], progress: Progress | None,
+                    split_seconds: float | None = None) -> tuple[dict[str, CaptureOutcome], dict[str, Any]]:
     from distributed import as_completed
 
     outcomes: dict[str, CaptureOutcome] = {}
     with _connected(tasks=len(tasks), **connection) as (client, cluster):
         cluster["workers"] = len(client.nthreads())
-        futures = {client.submit(run_capture, task, retries=TASK_RETRIES, pure=False,
-                                 key=f"iqsift-extract-{task.stem}-{uuid.uuid4().hex[:8]}"): task for task in tasks}
-        for future in as_completed(futures):
-            task = futures[future]
-            outcomes[task.stem] = _collected(future, task)
+        futures: dict[Future, tuple[CaptureTask, Mapping[str, Any] | None]] = {}
+        pieces: list[Future] = []
+        for task in tasks:
+            tag = uuid.uuid4().hex[:8]
+            if split_seconds is None:
+                futures[client.submit(run_capture, task, retries=TASK_RETRIES, pure=False,
+                                      key=f"iqsift-extract-{task.stem}-{tag}")] = (task, None)
+                continue
+            try:
+                outcome, fronts, job = submit_capture(client, run_capture, task, split_seconds, TASK_RETRIES, tag)
+            except (IqsiftError, OSError) as exc:
+                outcomes[task.stem] = task.failed(_one_line(exc), {"finished_utc": _utc_now()})
+                continue
+            futures[outcome] = (task, {"seconds": split_seconds, "piece_samples": job.piece_samples,
+                                       "pieces": job.pieces, "units": len(job.units)})
+            pieces += fronts
+        total = len(pieces) if split_seconds is not None else len(tasks)
+        piece_keys = {f.key for f in pieces}
+        waiting = as_completed([*futures, *pieces])
+        pieces.clear()  # the client keeps no piece: each is released once its consumers ran
+        for future in waiting:
+            if future in futures:
+                task, split = futures.pop(future)
+                outcomes[task.stem] = replace(_collected(future, task), split=split)
+            if progress is not None and (split_seconds is None or future.key in piece_keys):
+                progress(1, total)
             future.release()
-            if progress is not None:
-                progress(1, len(tasks))
     return outcomes, cluster
 
 
@@ -681,6 +705,7 @@ def batch_files(
     rate: str | float | None = None,
     center: str | float | None = None,
     strict: bool = False,
+    split_seconds: float | None = None,
 ) -> BatchResult:
     """Extract every capture with its plan, each into ``out_dir/<stem>/``, on Dask's distributed scheduler.
 
@@ -717,7 +742,11 @@ def batch_files(
         Keep captures an earlier run of this batch finished whose listed outputs are intact (same
         SHA-256), with the same plan and options; run the rest.
     progress : callable, optional
-        Called with ``(1, total)`` as each capture finishes.
+        Called with ``(1, total)`` as each capture (with ``split_seconds``: each piece) finishes.
+    split_seconds : float, optional
+        Cut each capture into time pieces of about this length (s, rounded to the filter bank's hop) run
+        in parallel, with outputs equal to a whole pass's (:mod:`iqsift.jobs.split`); not with spectra
+        or baseband.
 
     Raises
     ------
@@ -739,6 +768,8 @@ def batch_files(
     options = {"spectra": spectra, "plot_format": plot_format, "baseband": baseband,
                "allow_nonfinite": allow_nonfinite, "format": format, "rate": rate, "center": center,
                "strict": strict}
+    if split_seconds is not None:
+        check_split(split_seconds, options)
     tasks = _tasks(captures, plan, folder, options, force)
     earlier = _earlier_lines(folder) if resume else {}
     outcomes: dict[str, CaptureOutcome] = {}
@@ -756,7 +787,7 @@ def batch_files(
             connection = {"client": client, "workers": workers, "scheduler": scheduler,
                           "scheduler_file": None if scheduler_file is None else os.fspath(scheduler_file),
                           "memory_limit": memory_limit}
-            ran, cluster = _run_on_cluster(todo, connection, progress)
+            ran, cluster = _run_on_cluster(todo, connection, progress, split_seconds)
             outcomes.update(ran)
     finally:
         _remove_staging(folder)
