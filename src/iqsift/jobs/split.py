@@ -25,7 +25,8 @@ import os
 import time
 import uuid
 import warnings
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
+from datetime import datetime, timezone
 from pathlib import Path
 from typing import TYPE_CHECKING, Any, Callable, Mapping
 
@@ -290,9 +291,14 @@ def write_outputs(job: SplitJob, states: list[UnitState], folder: Path, started_
 
 def run_split(run: Callable[..., Any], task: Any, job: SplitJob, started_wall: float, _verified: None,
               *states: UnitState) -> Any:
-    """The capture's last task: its folder written through ``run`` (the batch's staging and commit)."""
+    """The capture's last task: its folder written through ``run`` (the batch's staging and commit), the
+    outcome timed from the capture's submission."""
     try:
-        return run(task, produce=lambda staging: write_outputs(job, list(states), staging, started_wall))
+        outcome = run(task, produce=lambda staging: write_outputs(job, list(states), staging, started_wall))
+        # the capture's time is that of all its tasks, from submission; not only of this last one
+        started = datetime.fromtimestamp(started_wall, timezone.utc).strftime("%Y-%m-%dT%H:%M:%S.%fZ")
+        return replace(outcome, timings={**outcome.timings, "started_utc": started,
+                                         "elapsed_s": time.time() - started_wall})
     finally:
         import shutil
 
