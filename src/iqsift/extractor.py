@@ -238,38 +238,68 @@ class Extractor:
     def channels(self) -> list[Channel]:
         return [rx.channel for rx in self.receivers]
 
+    @property
+    def units(self) -> list[tuple[int, ...]]:
+        """The channels' back ends as independent units of work (channel indices): each single channel,
+        then each batch of identical envelope chains (which share their stages' state)."""
+        return [(i,) for i in self.singles] + [tuple(b.members) for b in self.batches]
+
     def process(self, block: np.ndarray) -> list[np.ndarray]:
         """Feed IQ samples; returns the new audio of every channel (in channel order)."""
         block = np.asarray(block)
         self.samples_in += block.shape[0]
         if self.input_spectrum is not None and block.size:
             self.input_spectrum.feed(block)
-        outs = self.bank.process(block)
-        baseband = [mixer.process(bb) for mixer, bb in zip(self.mixers, outs)]
+        return self.process_channels(self.bank.process(block), block.shape[0])
+
+    def process_channels(self, outs: Sequence[np.ndarray], input_samples: int,
+                         units: Sequence[tuple[int, ...]] | None = None) -> list[np.ndarray]:
+        """The back ends of ``units`` (default: all, see :attr:`units`) on the bank's outputs ``outs``
+        (one per channel; those outside ``units`` are not read) made from ``input_samples`` input samples;
+        returns the new audio of every channel (empty outside ``units``)."""
+        chosen = self.units if units is None else units
+        members = [i for unit in chosen for i in unit]
         audio: list[np.ndarray] = [np.zeros(0, np.float32)] * len(self.receivers)
-        for rx in self.receivers:
-            rx.count_input(block.shape[0])
+        baseband: dict[int, np.ndarray] = {i: self.mixers[i].process(outs[i]) for i in sorted(members)}
+        for i in sorted(members):
+            self.receivers[i].count_input(input_samples)
         for i in self.singles:
-            audio[i] = self.receivers[i].process_baseband(baseband[i])
+            if i in baseband:
+                audio[i] = self.receivers[i].process_baseband(baseband[i])
         for batch in self.batches:
-            for i, a in zip(batch.members, batch.process([baseband[i] for i in batch.members])):
-                audio[i] = a
+            if batch.members[0] in baseband:
+                for i, a in zip(batch.members, batch.process([baseband[i] for i in batch.members])):
+                    audio[i] = a
         return audio
+
+    @property
+    def flush_padding(self) -> int:
+        """Zero input samples fed at the end to push every channel's delayed tail out."""
+        return max(rx.flush_padding for rx in self.receivers)
 
     def flush(self) -> list[np.ndarray]:
         """Push every channel's delayed tail out; returns the last audio of every channel."""
-        pad = max(rx.flush_padding for rx in self.receivers)
-        tails = self.bank.process(np.zeros(pad, np.complex64))
+        tails = self.bank.process(np.zeros(self.flush_padding, np.complex64))
         flushed = self.bank.flush()
-        tails = [mixer.process(t) for mixer, t in zip(self.mixers, tails)]
-        flushed = [mixer.process(r) for mixer, r in zip(self.mixers, flushed)]
+        return self.finish_channels(tails, flushed)
+
+    def finish_channels(self, tails: Sequence[np.ndarray], flushed: Sequence[np.ndarray],
+                        units: Sequence[tuple[int, ...]] | None = None) -> list[np.ndarray]:
+        """Finish the back ends of ``units`` from the bank's outputs for the end padding (``tails``) and
+        its flush (``flushed``); returns the last audio of every channel (empty outside ``units``)."""
+        chosen = self.units if units is None else units
+        members = sorted(i for unit in chosen for i in unit)
+        tail = {i: self.mixers[i].process(tails[i]) for i in members}
+        rest = {i: self.mixers[i].process(flushed[i]) for i in members}
         audio: list[np.ndarray] = [np.zeros(0, np.float32)] * len(self.receivers)
         for i in self.singles:
-            audio[i] = self.receivers[i].finish_baseband(tails[i], flushed[i])
+            if i in tail:
+                audio[i] = self.receivers[i].finish_baseband(tail[i], rest[i])
         for batch in self.batches:
-            done = batch.finish([tails[i] for i in batch.members], [flushed[i] for i in batch.members])
-            for i, a in zip(batch.members, done):
-                audio[i] = a
+            if batch.members[0] in tail:
+                done = batch.finish([tail[i] for i in batch.members], [rest[i] for i in batch.members])
+                for i, a in zip(batch.members, done):
+                    audio[i] = a
         return audio
 
     def stream(self, blocks: Iterable[np.ndarray]) -> Iterator[list[np.ndarray]]:

@@ -46,6 +46,9 @@ def batch_command(
                                        "--scheduler-file FILE)."),
     resume: bool = typer.Option(
         False, "--resume", help="Keep captures whose outputs listed in batch.jsonl are intact (sha256); run the rest."),
+    split_seconds: Optional[float] = typer.Option(
+        None, "--split-seconds", help="Cut each capture into time pieces of about S seconds (rounded to the filter "
+                                      "bank's hop) run in parallel; outputs equal a whole pass's.", metavar="S"),
     spectra: bool = typer.Option(False, "--spectra", help="Also write stage spectra plots per channel."),
     plot_format: str = PlotFormatOption,
     baseband: bool = typer.Option(False, "--baseband", help="Also write each channel's baseband as SigMF."),
@@ -66,12 +69,12 @@ def batch_command(
         raise typer.BadParameter("give captures (CAPTURE...) or --manifest FILE, one of the two")
     try:
         items = read_manifest(manifest) if manifest is not None else expand_captures(captures or ())
-        with _progress_bar(quiet) as progress:
+        with _progress_bar(quiet, "captures" if split_seconds is None else "pieces") as progress:
             result = batch_files(
                 items, plan_path, out_dir, workers=workers, scheduler=scheduler, scheduler_file=scheduler_file,
                 spectra=spectra, plot_format=plot_format, baseband=baseband, allow_nonfinite=allow_nonfinite,
                 force=force, resume=resume, progress=progress, format=format, rate=rate, center=center,
-                strict=strict, ppm=ppm,
+                strict=strict, ppm=ppm, split_seconds=split_seconds,
             )
     except IqsiftError as exc:
         exc.args = (_in_batch_words(str(exc), exc.parameters),)
@@ -92,7 +95,7 @@ def batch_command(
 
 
 _BATCH_FLAGS = {"captures": "CAPTURE", "plan": "--plan", "resume": "--resume", "workers": "--workers",
-                "scheduler": "--scheduler", "scheduler_file": "--scheduler-file"}
+                "scheduler": "--scheduler", "scheduler_file": "--scheduler-file", "split_seconds": "--split-seconds"}
 """The batch job's own parameters as this command's flags (the shared ones are in options.FLAGS)."""
 
 
@@ -103,10 +106,11 @@ def _in_batch_words(message: str, parameters: tuple[str, ...]) -> str:
 
 
 class _progress_bar:
-    """A rich progress bar over captures on stderr, only on a terminal and without ``-q``."""
+    """A rich progress bar over captures (or pieces) on stderr, only on a terminal and without ``-q``."""
 
-    def __init__(self, quiet: bool) -> None:
+    def __init__(self, quiet: bool, unit: str = "captures") -> None:
         self.enabled = not quiet and sys.stderr.isatty()
+        self.unit = unit
         self._bar: Any = None
         self._task: Any = None
 
@@ -116,7 +120,7 @@ class _progress_bar:
         from rich.console import Console
         from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
 
-        self._bar = Progress(TextColumn("batch"), BarColumn(), MofNCompleteColumn(), TextColumn("captures"),
+        self._bar = Progress(TextColumn("batch"), BarColumn(), MofNCompleteColumn(), TextColumn(self.unit),
                              TimeElapsedColumn(), console=Console(stderr=True), transient=False)
         self._bar.start()
         return self.advance

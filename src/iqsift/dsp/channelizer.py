@@ -384,6 +384,35 @@ class FastConvChannelizer:
         self._frame_start = -self.history  # global index of the buffer's first sample
         self._consumed = 0  # input samples received
 
+    def start_at(self, start: int, preceding: np.ndarray) -> None:
+        """Continue as though input samples ``0 .. start - 1`` had been fed: the bank's frames stay on the
+        absolute grid ``-history + i·hop``, so a time piece of a capture gives exactly the outputs a whole
+        pass gives for it (from output ``start / D`` of each channel on).
+
+        Parameters
+        ----------
+        start : int
+            Index of the next input sample; a multiple of :attr:`hop`.
+        preceding : ndarray
+            The :attr:`history` input samples before ``start`` (zeros before sample 0, as the
+            whole pass holds them).
+
+        Raises
+        ------
+        ParameterError
+            If ``start`` is off the hop grid or ``preceding`` is not ``history`` samples long.
+        """
+        if start < 0 or start % self.hop:
+            raise ParameterError(f"start: got {start}; a time piece must start on the bank's hop grid "
+                                 f"(a multiple of {self.hop} samples)", parameters=("start",))
+        preceding = np.asarray(preceding)
+        if preceding.shape != (self.history,):
+            raise ParameterError(f"preceding: got {preceding.shape[0]} samples; the bank's history is "
+                                 f"{self.history}", parameters=("preceding",))
+        self._buffer = preceding.astype(np.complex64, copy=True)
+        self._frame_start = start - self.history
+        self._consumed = start
+
     # ------------------------------------------------------------------
     def process(self, block: np.ndarray) -> list[np.ndarray]:
         """Feed input samples; returns the new outputs of every channel."""

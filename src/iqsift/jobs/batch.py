@@ -17,13 +17,11 @@ from __future__ import annotations
 
 import contextlib
 import csv
-import glob
 import hashlib
 import json
 import os
 import platform
 import re
-import shlex
 import shutil
 import sys
 import time
@@ -32,7 +30,7 @@ import warnings
 from dataclasses import dataclass, replace
 from datetime import datetime, timedelta, timezone
 from pathlib import Path
-from typing import TYPE_CHECKING, Any, Iterable, Iterator, Literal, Mapping, Sequence, Union
+from typing import TYPE_CHECKING, Any, Callable, Iterable, Iterator, Literal, Mapping, Sequence, Union
 
 from .. import __version__
 from ..captures.atomic import write_atomically
@@ -41,6 +39,8 @@ from ..jsonable import dumps, to_jsonable
 from ..plan import load_plan
 from .common import Progress, check_plot_format, stamped
 from .extract import ChannelResult, ExtractResult, extract_file
+from .batch_inputs import capture_stem, expand_captures, read_manifest
+from .split import check_split, submit_capture
 
 if TYPE_CHECKING:
     from distributed import Client, Future
@@ -64,87 +64,11 @@ STAGING_MARK = ".batch-partial-"
 TASK_RETRIES = 2
 """Dask re-runs a task whose code raised an unexpected error (storage hiccup, memory) this many times;
 a worker that dies mid-task is replaced and its task rescheduled by the scheduler itself."""
-SIGMF_SUFFIXES = (".sigmf-meta", ".sigmf-data", ".sigmf")
 ACTIVITY_COLUMNS = ("start_utc", "end_utc", "capture", "channel", "frequency_hz", "start_s", "end_s",
                     "duration_s", "level_dbfs")
 
 CaptureItem = Union[str, "os.PathLike[str]", tuple[Union[str, "os.PathLike[str]"], Union[str, "os.PathLike[str]", None]]]
 """A capture path, or ``(capture, plan)`` for a capture with its own plan (a manifest line)."""
-
-
-# -- naming captures ------------------------------------------------------------------------------
-def capture_stem(path: str | os.PathLike[str]) -> str:
-    """The name of a capture's output folder: its file name without ``.sigmf-meta``/``.sigmf-data``/
-    ``.sigmf`` or its last extension (``airfield.sigmf-meta`` -> ``airfield``, ``run1.cf32`` -> ``run1``)."""
-    name = Path(path).name
-    for suffix in SIGMF_SUFFIXES:
-        if name.endswith(suffix) and len(name) > len(suffix):
-            return name[: -len(suffix)]
-    return Path(name).stem
-
-
-def expand_captures(patterns: Iterable[str | os.PathLike[str]]) -> list[str]:
-    """Capture paths from paths and shell-style globs, in the order given (each glob's matches sorted).
-
-    A glob that matches nothing is refused; a plain path is kept as it is (a missing file fails its
-    own capture, not the batch). A SigMF recording matched by both its files counts once, by its
-    ``.sigmf-meta``.
-
-    Raises
-    ------
-    ParameterError
-        If a glob matches no file, or no capture is given at all.
-    """
-    found: list[str] = []
-    for pattern in patterns:
-        text = os.fspath(pattern)
-        if not os.path.exists(text) and glob.has_magic(text):
-            matches = sorted(glob.glob(text))
-            if not matches:
-                raise ParameterError(f"captures: {text!r} matches no file", parameters=("captures",))
-            found += matches
-        else:
-            found.append(text)
-    unique: dict[str, str] = {}
-    for path in found:
-        if path.endswith(".sigmf-data") and os.path.exists(path[: -len("-data")] + "-meta"):
-            path = path[: -len("-data")] + "-meta"
-        unique.setdefault(os.path.abspath(path), path)
-    if not unique:
-        raise ParameterError("captures: none given", parameters=("captures",))
-    return list(unique.values())
-
-
-def read_manifest(path: str | os.PathLike[str]) -> list[tuple[str, str | None]]:
-    """The captures a manifest lists: one per line, optionally followed by that capture's plan.
-
-    Blank lines and ``#`` comments are skipped; a path holding spaces is quoted as in a shell.
-    Relative paths are relative to the manifest's folder, so a manifest travels with its captures.
-
-    Raises
-    ------
-    ParameterError
-        If a line holds more than a capture and a plan, or the manifest lists nothing.
-    """
-    manifest = Path(path)
-    base = manifest.parent
-    items: list[tuple[str, str | None]] = []
-    for number, line in enumerate(manifest.read_text(encoding="utf-8").splitlines(), start=1):
-        try:
-            fields = shlex.split(line, comments=True)
-        except ValueError as exc:
-            raise ParameterError(f"manifest {manifest}, line {number}: {exc}", parameters=("manifest",)) from None
-        if not fields:
-            continue
-        if len(fields) > 2:
-            raise ParameterError(f"manifest {manifest}, line {number}: got {len(fields)} fields; a line holds a "
-                                 "capture and optionally its plan (quote paths holding spaces)",
-                                 parameters=("manifest",))
-        capture = str(base / fields[0])
-        items.append((capture, str(base / fields[1]) if len(fields) == 2 else None))
-    if not items:
-        raise ParameterError(f"manifest {manifest}: lists no capture", parameters=("manifest",))
-    return items
 
 
 # -- typed results --------------------------------------------------------------------------------
@@ -215,6 +139,7 @@ class CaptureOutcome:
     versions: Mapping[str, str]
     resumed: bool = False
     worker_peak_rss_mb: float | None = None
+    split: Mapping[str, Any] | None = None
 
     def to_dict(self) -> dict[str, Any]:
         """The capture's ``batch.jsonl`` line."""
@@ -228,6 +153,7 @@ class CaptureOutcome:
             "activity_segments": len(self.activity), "warnings": list(self.warnings),
             "options": dict(self.options), "timings": dict(self.timings), "worker": self.worker,
             "worker_peak_rss_mb": self.worker_peak_rss_mb, "versions": dict(self.versions), "resumed": self.resumed,
+            "split": None if self.split is None else dict(self.split),
         })
         return to_jsonable(line)
 
@@ -240,7 +166,7 @@ class CaptureOutcome:
             channels=line["channels"], activity=activity, warnings=tuple(line.get("warnings", ())),
             options=line["options"], plan_sha256=line.get("plan_sha256"), timings=line.get("timings", {}),
             worker=line.get("worker"), versions=line.get("versions", {}), resumed=True,
-            worker_peak_rss_mb=line.get("worker_peak_rss_mb"),
+            worker_peak_rss_mb=line.get("worker_peak_rss_mb"), split=line.get("split"),
         )
 
 
@@ -450,12 +376,13 @@ def _commit_folder(staging: Path, final: Path, force: bool) -> None:
         old.unlink()
 
 
-def run_capture(task: CaptureTask) -> CaptureOutcome:
+def run_capture(task: CaptureTask, produce: Callable[[Path], ExtractResult] | None = None) -> CaptureOutcome:
     """Extract one capture into ``<folder>/<stem>/`` through a staging folder (the task a worker runs).
 
     A capture iqsift refuses (unreadable, plan outside its band ...) gives a failed outcome, not an
     exception: running it again would fail the same way. Any other exception is raised for Dask to
-    retry. Either way the staging folder is removed.
+    retry. Either way the staging folder is removed. ``produce(staging)`` replaces the extraction (a
+    capture run in time pieces, :mod:`iqsift.jobs.split`).
     """
     started, t0 = _utc_now(), time.perf_counter()
     folder = Path(task.folder)
@@ -464,8 +391,9 @@ def run_capture(task: CaptureTask) -> CaptureOutcome:
     try:
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always")
-            result = _moved(extract_file(task.capture, task.plan, staging, force=False, **task.options),
-                            staging, final)
+            made = (extract_file(task.capture, task.plan, staging, force=False, **task.options) if produce is None
+                    else produce(staging))
+            result = _moved(made, staging, final)
         (staging / "report.json").write_text(dumps(result.to_dict()), encoding="utf-8")
         report = result.to_dict()
         outputs = tuple(OutputFile(str(Path(task.stem) / p.relative_to(staging)), _sha256(p))
@@ -642,21 +570,40 @@ def _collected(future: Future, task: CaptureTask) -> CaptureOutcome:
                        {"finished_utc": _utc_now()})
 
 
-def _run_on_cluster(tasks: Sequence[CaptureTask], connection: Mapping[str, Any],
-                    progress: Progress | None) -> tuple[dict[str, CaptureOutcome], dict[str, Any]]:
+def _run_on_cluster(tasks: Sequence[CaptureTask], connection: Mapping[str, Any], progress: Progress | None,
+                    split_seconds: float | None = None) -> tuple[dict[str, CaptureOutcome], dict[str, Any]]:
     from distributed import as_completed
 
     outcomes: dict[str, CaptureOutcome] = {}
     with _connected(tasks=len(tasks), **connection) as (client, cluster):
         cluster["workers"] = len(client.nthreads())
-        futures = {client.submit(run_capture, task, retries=TASK_RETRIES, pure=False,
-                                 key=f"iqsift-extract-{task.stem}-{uuid.uuid4().hex[:8]}"): task for task in tasks}
-        for future in as_completed(futures):
-            task = futures[future]
-            outcomes[task.stem] = _collected(future, task)
+        futures: dict[Future, tuple[CaptureTask, Mapping[str, Any] | None]] = {}
+        pieces: list[Future] = []
+        for task in tasks:
+            tag = uuid.uuid4().hex[:8]
+            if split_seconds is None:
+                futures[client.submit(run_capture, task, retries=TASK_RETRIES, pure=False,
+                                      key=f"iqsift-extract-{task.stem}-{tag}")] = (task, None)
+                continue
+            try:
+                outcome, fronts, job = submit_capture(client, run_capture, task, split_seconds, TASK_RETRIES, tag)
+            except (IqsiftError, OSError) as exc:
+                outcomes[task.stem] = task.failed(_one_line(exc), {"finished_utc": _utc_now()})
+                continue
+            futures[outcome] = (task, {"seconds": split_seconds, "piece_samples": job.piece_samples,
+                                       "pieces": job.pieces, "units": len(job.units)})
+            pieces += fronts
+        total = len(pieces) if split_seconds is not None else len(tasks)
+        piece_keys = {f.key for f in pieces}
+        waiting = as_completed([*futures, *pieces])
+        pieces.clear()  # the client keeps no piece: each is released once its consumers ran
+        for future in waiting:
+            if future in futures:
+                task, split = futures.pop(future)
+                outcomes[task.stem] = replace(_collected(future, task), split=split)
+            if progress is not None and (split_seconds is None or future.key in piece_keys):
+                progress(1, total)
             future.release()
-            if progress is not None:
-                progress(1, len(tasks))
     return outcomes, cluster
 
 
@@ -682,6 +629,7 @@ def batch_files(
     center: str | float | None = None,
     strict: bool = False,
     ppm: float | None = None,
+    split_seconds: float | None = None,
 ) -> BatchResult:
     """Extract every capture with its plan, each into ``out_dir/<stem>/``, on Dask's distributed scheduler.
 
@@ -718,7 +666,11 @@ def batch_files(
         Keep captures an earlier run of this batch finished whose listed outputs are intact (same
         SHA-256), with the same plan and options; run the rest.
     progress : callable, optional
-        Called with ``(1, total)`` as each capture finishes.
+        Called with ``(1, total)`` as each capture (with ``split_seconds``: each piece) finishes.
+    split_seconds : float, optional
+        Cut each capture into time pieces of about this length (s, rounded to the filter bank's hop) run
+        in parallel, with outputs equal to a whole pass's (:mod:`iqsift.jobs.split`); not with spectra
+        or baseband.
 
     Raises
     ------
@@ -742,6 +694,8 @@ def batch_files(
                "strict": strict}
     if ppm is not None:  # only when given: earlier batch logs without it still resume
         options["ppm"] = ppm
+    if split_seconds is not None:
+        check_split(split_seconds, options)
     tasks = _tasks(captures, plan, folder, options, force)
     earlier = _earlier_lines(folder) if resume else {}
     outcomes: dict[str, CaptureOutcome] = {}
@@ -759,7 +713,7 @@ def batch_files(
             connection = {"client": client, "workers": workers, "scheduler": scheduler,
                           "scheduler_file": None if scheduler_file is None else os.fspath(scheduler_file),
                           "memory_limit": memory_limit}
-            ran, cluster = _run_on_cluster(todo, connection, progress)
+            ran, cluster = _run_on_cluster(todo, connection, progress, split_seconds)
             outcomes.update(ran)
     finally:
         _remove_staging(folder)
