@@ -45,7 +45,8 @@ def check_ppm(name: str, value: object) -> float:
     """``value`` as a reference error in ppm: finite, at most :data:`MAX_PPM` in size."""
     ppm = finite(name, value)
     if abs(ppm) > MAX_PPM:
-        raise ParameterError(f"{name}: got {value!r} ppm; a reference error must lie within ±{MAX_PPM:g} ppm")
+        # the unit written out: "ppm" would read as the flag --ppm once the CLI names its parameters
+        raise ParameterError(f"{name}: got {value!r}; a reference error must lie within ±{MAX_PPM:g} parts per million")
     return ppm
 
 

@@ -37,6 +37,9 @@ GENERATOR = f"iqsift {__version__}"
 
 def _data_file(capture: Capture) -> Path:
     files = capture.files
+    if not files:
+        raise ParameterError("annotate: standard input has no data file for the annotations to describe; "
+                             "record the stream to a file first", parameters=("annotate",))
     return files[-1]
 
 

@@ -97,6 +97,8 @@ FLAGS: dict[str, str] = {
     "iq_correct": "--iq-correct",
     "audio_format": "--audio-format",
     "reference": "--reference",
+    "html": "--html",
+    "output": "-o",
 }
 """Python parameter name -> the flag that sets it."""
 

@@ -71,7 +71,12 @@ def read_manifest(path: str | os.PathLike[str]) -> list[tuple[str, str | None]]:
     manifest = Path(path)
     base = manifest.parent
     items: list[tuple[str, str | None]] = []
-    for number, line in enumerate(manifest.read_text(encoding="utf-8").splitlines(), start=1):
+    try:
+        text = manifest.read_text(encoding="utf-8")
+    except UnicodeDecodeError as exc:
+        raise ParameterError(f"manifest {manifest}: not a text file (byte {exc.start} is not UTF-8); "
+                             "it lists one capture path per line", parameters=("manifest",)) from None
+    for number, line in enumerate(text.splitlines(), start=1):
         try:
             fields = shlex.split(line, comments=True)
         except ValueError as exc:

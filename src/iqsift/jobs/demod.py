@@ -27,6 +27,7 @@ from .common import (
     nonfinite_policy,
     opened,
     stamped,
+    with_iq_correction,
 )
 
 __all__ = ["DemodOutputs", "DemodResult", "demod_file"]
@@ -182,15 +183,19 @@ def demod_file(
         ``capture.iq_correction`` records what was removed.
     """
     check_plot_format(plot_format)
+    if html and str(output) == "-":
+        raise ParameterError("html: the page links its audio file; output '-' sends the audio down a pipe, with no "
+                             "file to link",
+                             parameters=("html", "output"))
     if audio_format != "wav" and str(output) != "-":
         raise ParameterError(f"audio_format: {audio_format!r} is for audio on standard output (output '-'); "
                              f"{output} takes its format from its extension")
     started = time.perf_counter()
     with opened(capture, format=format, rate=rate, center=center, strict=strict,
-                verify=verify, ppm=ppm, iq_correct=iq_correct) as cap:
+                verify=verify, ppm=ppm) as cap:
         selection = cap.select(start, duration)
         receiver = Receiver.for_capture(cap, channel, selection, engine=engine, agc=agc, spectra=bool(spectra) or html)
-        if annotate:
+        if annotate or html:  # activity (and the page's table) need the measurements
             receiver.analyze(time_offset_s=selection.start / cap.sample_rate_hz)  # activity in capture time
         spectra_dir = Path(spectra) if spectra else None
         keeper = None
@@ -211,7 +216,7 @@ def demod_file(
                 if receiver.audio_channels != 1:
                     raise ParameterError("output: '-' streams one audio channel; an isb channel has two, "
                                          "write it to a WAV or FLAC file", parameters=("output",))
-                audio_writer = StreamAudioWriter(receiver.audio_rate_hz, audio_format)
+                audio_writer = StreamAudioWriter(audio_file_rate(receiver.audio_rate_hz), audio_format)
             else:
                 audio_writer = AudioWriter(output, audio_file_rate(receiver.audio_rate_hz),
                                            channels=receiver.audio_channels, outputs=outputs)
@@ -225,6 +230,8 @@ def demod_file(
                     center_hz=channel.absolute_frequency(centre), channel=channel.as_dict(centre),
                     design=receiver.design.as_dict(centre), outputs=outputs)
                 receiver.on_baseband(bb_writer.write)
+            if iq_correct:  # its first pass over the capture comes once every output has been checked
+                with_iq_correction(cap)
             blocks = cap.blocks(start=selection.start, count=selection.count,
                                 nonfinite=nonfinite_policy(allow_nonfinite))
             for audio in receiver.stream(counted(blocks, selection.count, progress)):

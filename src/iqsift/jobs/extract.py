@@ -17,6 +17,7 @@ from ..captures import (
     annotated_metadata,
     check_annotation_path,
 )
+from ..captures.atomic import why_not_a_folder
 from ..errors import ParameterError
 from ..extractor import Extractor
 from ..jsonable import dumps
@@ -35,6 +36,7 @@ from .common import (
     nonfinite_policy,
     opened,
     stamped,
+    with_iq_correction,
 )
 
 __all__ = ["ChannelResult", "ExtractResult", "extract_file"]
@@ -167,7 +169,7 @@ def extract_file(
         Also write ``report.html`` (:mod:`iqsift.html_report`): a table of the channels, the activity
         timeline, and per channel an audio player, its stage-spectra overview and links to its JSON;
         figures under ``report_files/`` in ``plot_format``.
-    start, duration, allow_nonfinite, force, progress, format, rate, center, strict, verify, ppm
+    start, duration, allow_nonfinite, force, progress, format, rate, center, strict, verify, ppm, iq_correct
         As for :func:`demod_file`; without ``ppm`` the plan's ``[defaults] ppm`` (if any) applies.
     annotate : path, optional
         Write SigMF metadata of the same recording (``.sigmf-meta``, in the data file's folder) with one
@@ -181,12 +183,12 @@ def extract_file(
     if folder.exists() and not folder.is_dir():
         raise ParameterError(f"out_dir {folder}: exists and is not a folder", parameters=("out_dir",))
     with opened(capture, format=format, rate=rate, center=center, strict=strict,
-                verify=verify, ppm=ppm if ppm is not None else plan_obj.ppm, iq_correct=iq_correct) as cap:
+                verify=verify, ppm=ppm if ppm is not None else plan_obj.ppm) as cap:
         selection = cap.select(start, duration)
         extractor = Extractor.from_plan(cap, plan_obj, selection=selection, spectra=spectra or html)
         parent = folder.parent if str(folder.parent) else Path(".")
         if not parent.is_dir():
-            raise ParameterError(f"out_dir {folder}: the folder {parent} does not exist", parameters=("out_dir",))
+            raise ParameterError(f"out_dir {folder}: {why_not_a_folder(parent)}", parameters=("out_dir",))
         if spectra:
             from ..stage_plots import check_stage_plot_folder
 
@@ -205,7 +207,8 @@ def extract_file(
                         plan=str(plan_file) if plan_file is not None else plan_obj.source,
                         baseband=baseband, spectra=spectra, html=html, plot_format=plot_format,
                         nonfinite=nonfinite_policy(allow_nonfinite), progress=progress,
-                        annotate=None if annotate_tmp is None else (annotate_tmp, str(annotate)))
+                        annotate=None if annotate_tmp is None else (annotate_tmp, str(annotate)),
+                        iq_correct=iq_correct)
 
 
 def _stem(rx: Any) -> str:
@@ -215,7 +218,8 @@ def _stem(rx: Any) -> str:
 
 def _run(extractor: Extractor, cap: Capture, selection: SampleRange, folder: Path, outputs: OutputSet,
          started: float, *, plan: str, baseband: bool, spectra: bool, html: bool, plot_format: str, nonfinite: str,
-         progress: Progress | None, annotate: tuple[Path, str] | None = None) -> ExtractResult:
+         progress: Progress | None, annotate: tuple[Path, str] | None = None,
+         iq_correct: bool = False) -> ExtractResult:
     writers: list[AudioWriter] = []
     bb_writers: list[SigMFWriter] = []
     files: list[dict[str, Any]] = []
@@ -241,6 +245,8 @@ def _run(extractor: Extractor, cap: Capture, selection: SampleRange, folder: Pat
 
         keepers = [AudioKeeper.attach(rx) for rx in extractor.receivers]
     report_tmp = outputs.reserve(folder / "report.json")
+    if iq_correct:  # its first pass over the capture comes once every output has been checked
+        with_iq_correction(cap)
     blocks = cap.blocks(start=selection.start, count=selection.count, nonfinite=nonfinite)
     t0 = time.perf_counter()
     for audio_list in extractor.stream(counted(blocks, selection.count, progress)):

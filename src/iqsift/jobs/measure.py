@@ -123,7 +123,7 @@ def measure_file(
         x of the x-dB bandwidth (ITU-R SM.328), dB.
     threshold_db : float
         Activity threshold above the channel's noise floor, dB.
-    start, duration, allow_nonfinite, progress, format, rate, center, strict, verify, ppm
+    start, duration, allow_nonfinite, progress, format, rate, center, strict, verify, ppm, iq_correct
         As for :func:`demod_file`.
     reference : path, optional
         The transmitted message (an audio file, >= 3 s; two channels, lower and upper, for ISB): the

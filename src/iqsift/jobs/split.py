@@ -33,7 +33,7 @@ from typing import TYPE_CHECKING, Any, Callable, Mapping
 import numpy as np
 
 from ..captures import DEFAULT_BLOCK_SIZE, AudioWriter, OutputSet
-from ..errors import IqsiftWarning, ParameterError
+from ..errors import CaptureError, IqsiftWarning, ParameterError
 from ..extractor import Extractor
 from ..jsonable import dumps
 from ..plan import load_plan
@@ -283,6 +283,9 @@ def write_outputs(job: SplitJob, states: list[UnitState], folder: Path, started_
                     left = by_channel[i].written[i]  # float32 values: samples × audio channels
                     while left > 0:
                         chunk = np.frombuffer(handle.read(min(left, 1 << 20) * 4), np.float32)
+                        if chunk.size == 0:  # the spool lost samples (storage): refuse, never loop forever
+                            raise CaptureError(f"{_audio_path(job, i)}: {left} audio samples missing from the "
+                                               "pieces' spool file")
                         writer.write(chunk if rx.audio_channels == 1 else chunk.reshape(-1, rx.audio_channels))
                         left -= chunk.size
                 writer.close()

@@ -115,7 +115,7 @@ def survey_file(
         emission is found, nothing is written and :attr:`SurveyReport.plan` is None.
     resolution_hz : float, optional
         Detection bin width (Hz); default about 60 Hz.
-    start, duration, allow_nonfinite, force, progress, format, rate, center, strict, verify, ppm
+    start, duration, allow_nonfinite, force, progress, format, rate, center, strict, verify, ppm, iq_correct
         As for :func:`demod_file`.
     reference_carrier : float or str, optional
         True frequency (Hz) of one transmitter in the capture: the receiver reference error is
@@ -156,19 +156,20 @@ def survey_file(
                               wrap_blocks=with_progress)
             found, reference = _analysed(sv, cap, raster_obj, reference_hz, correct=ppm is None)
             plan_ppm = cap.reference_ppm if ppm is not None or (reference is not None and reference.applied) else None
-            written = None
-            if plan_tmp is not None:
-                if found.emissions:
+            written = annotated = None
+            if not found.emissions:  # no emission: no plan and no annotations, nothing left behind
+                outputs.abort()
+                if annotate_tmp is not None:
+                    warnings.warn(f"{annotate}: not written: no emission found to annotate", IqsiftWarning)
+            else:
+                if plan_tmp is not None:
                     plan_tmp.write_text(survey_plan_text(found, capture_name=cap.path.name, ppm=plan_ppm),
                                         encoding="utf-8")
                     written = str(plan_out)
-                else:
-                    outputs.abort()  # no emission, no plan: leave nothing behind
-            annotated = None
-            if annotate_tmp is not None and not (plan_tmp is not None and written is None):  # not aborted
-                doc = annotated_metadata(cap, str(annotate), emission_annotations(cap, selection, found))
-                annotate_tmp.write_text(dumps(doc), encoding="utf-8")
-                annotated = str(annotate)
+                if annotate_tmp is not None:
+                    doc = annotated_metadata(cap, str(annotate), emission_annotations(cap, selection, found))
+                    annotate_tmp.write_text(dumps(doc), encoding="utf-8")
+                    annotated = str(annotate)
             return SurveyReport(found, CaptureSummary.of(cap), SelectionSummary.of(cap, selection), written,
                                 reference, annotated)
 

@@ -317,7 +317,14 @@ class Surveyor:
         found = analyse_spectra(view, spec, fine, dof, fine_dof)
         irr_db = self._moments.result().image_rejection_db if self.is_complex else None
         emissions, images = split_images(found.emissions, irr_db, spec.bin_width_hz)
-        return dataclasses.replace(found, emissions=emissions, images=images, image_rejection_db=irr_db)
+        dc = found.dc_offset
+        if dc is not None and dc.get("carrier_emission") is not None:
+            # the emission numbers changed when the images were taken out: name the carrier at DC anew
+            at_dc = found.emissions[dc["carrier_emission"] - 1].frequency_hz
+            number = next((e.index for e in emissions if e.frequency_hz == at_dc), None)
+            dc = {**dc, "carrier_emission": number}
+        return dataclasses.replace(found, emissions=emissions, images=images, image_rejection_db=irr_db,
+                                   dc_offset=dc)
 
 
 def _rescaled(spectrum: Spectrum, k: float) -> Spectrum:
