@@ -185,3 +185,20 @@ def _channel():
     from iqsift import make_channel
 
     return make_channel(freq=CARRIERS_HZ[0], emission="6K00A3E")
+
+
+def test_the_carrier_at_dc_keeps_its_number_when_an_image_is_taken_out():
+    # a carrier on the centre, a stronger one at +200 kHz and its image at -200 kHz (below the centre): with the
+    # image gone the emissions are renumbered, and dc_offset.carrier_emission must follow (it named #2, now #1)
+    from iqsift.survey import Surveyor
+
+    rng = np.random.default_rng(11)
+    n = 500_000
+    t = np.arange(n) / RATE_HZ
+    am = 0.02 * (1 + 0.5 * np.sin(2 * np.pi * 1000 * t))  # AM on the centre: a carrier with sidebands, not a DC offset
+    x = 0.1 * np.exp(2j * np.pi * 200e3 * t) + am + 1e-4 * (rng.standard_normal(n) + 1j * rng.standard_normal(n))
+    result = Surveyor(RATE_HZ, n, center_hz=CENTER_HZ).feed(apply_imbalance(x, -0.5, 3.0)).result()
+    offsets = [round(e.offset_hz) for e in result.emissions]
+    assert offsets == [0, 200_000] and [round(i.offset_hz) for i in result.images] == [-200_000]
+    assert result.dc_offset is not None
+    assert result.dc_offset["carrier_emission"] == 1 and result.emissions[0].index == 1
