@@ -14,7 +14,7 @@ import subprocess
 import sys
 import time
 from pathlib import Path
-from typing import Callable
+from typing import Callable, Iterator
 
 import numpy as np
 import pytest
@@ -49,9 +49,22 @@ def big_capture(tmp_path: Path) -> Path:
     return path
 
 
+def as_from_a_terminal() -> None:
+    """SIGINT as a foreground shell leaves it: a suite started as a background job inherits it ignored."""
+    signal.signal(signal.SIGINT, signal.SIG_DFL)
+
+
 def start(tmp_path: Path, *args: str) -> subprocess.Popen[bytes]:
     return subprocess.Popen([sys.executable, "-m", "iqsift", *args], cwd=tmp_path,
-                            stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, preexec_fn=as_from_a_terminal)
+
+
+@pytest.fixture
+def python_sigint() -> Iterator[None]:
+    """Python's own SIGINT handler (KeyboardInterrupt), which a process started with SIGINT ignored lacks."""
+    previous = signal.signal(signal.SIGINT, signal.default_int_handler)
+    yield
+    signal.signal(signal.SIGINT, previous)
 
 
 def wait_for(process: subprocess.Popen[bytes], condition: Callable[[], bool], what: str) -> None:
@@ -200,7 +213,7 @@ def test_main_maps_a_signal_and_restores_the_handlers(run_cli, tmp_path, monkeyp
     assert main(["--version"]) == 0 and {s: signal.getsignal(s) for s in handlers} == handlers
 
 
-def test_signals_deferred_holds_a_signal_until_the_block_ends():
+def test_signals_deferred_holds_a_signal_until_the_block_ends(python_sigint):
     done = []
     with pytest.raises(KeyboardInterrupt):
         with signals_deferred():
@@ -210,7 +223,7 @@ def test_signals_deferred_holds_a_signal_until_the_block_ends():
     assert done == ["the whole block"]
 
 
-def test_commit_is_never_half_done(tmp_path, monkeypatch):
+def test_commit_is_never_half_done(tmp_path, monkeypatch, python_sigint):
     """A signal during the renames of a commit acts only after the last one."""
     outputs = OutputSet()
     for name in ("a", "b", "c"):
