@@ -28,7 +28,7 @@ from . import __version__
 from .captures.atomic import check_output_path
 from .units import format_hz
 
-__all__ = ["PageChannel", "render_report_page", "report_file_paths", "check_report_files", "write_html_report"]
+__all__ = ["PageChannel", "capture_rows", "render_report_page", "report_file_paths", "check_report_files", "write_html_report"]
 
 REPORT_NAME = "report.html"
 FIGURE_FOLDER = "report_files"
@@ -59,6 +59,17 @@ class PageChannel:
     @property
     def name(self) -> str:
         return str(self.report["channel"]["name"])
+
+
+def capture_rows(path: Any, center_hz: float | None, rate_hz: float, start_s: float,
+                 duration_s: float) -> list[tuple[str, str]]:
+    """The summary rows every page starts with: the capture, its centre and rate, the span processed (s)."""
+    centre = "centre unknown" if center_hz is None else format_hz(center_hz)
+    return [
+        ("Capture", str(path)),
+        ("Centre, rate", f"{centre}, {rate_hz:g} S/s"),
+        ("Processed", f"{start_s:.3f} s to {start_s + duration_s:.3f} s ({duration_s:.3f} s)"),
+    ]
 
 
 def _href(relative: str) -> str:

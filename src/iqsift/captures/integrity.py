@@ -16,7 +16,7 @@ from typing import BinaryIO
 
 from ..errors import CaptureError
 
-__all__ = ["ChecksumError", "ChecksumPass", "RecordedChecksum"]
+__all__ = ["ChecksumError", "ChecksumPass", "RecordedChecksum", "sha256_of_file"]
 
 _SHA512_HEX = re.compile(r"[0-9a-fA-F]{128}")
 _CHUNK_BYTES = 1 << 20
@@ -133,3 +133,12 @@ class ChecksumPass:
                 )
             self._sha.update(chunk)
             self.position += len(chunk)
+
+
+def sha256_of_file(path: str | Path) -> str:
+    """SHA-256 (FIPS 180-4) of a file's bytes, hex, read in 1 MiB pieces (bounded memory)."""
+    digest = hashlib.sha256()
+    with open(path, "rb") as handle:
+        for chunk in iter(lambda: handle.read(_CHUNK_BYTES), b""):
+            digest.update(chunk)
+    return digest.hexdigest()

@@ -18,6 +18,8 @@ from .options import (
     JsonOption,
     NonfiniteOption,
     OptStr,
+    PerChannelBasebandOption,
+    PerChannelSpectraOption,
     PlotFormatOption,
     PpmOption,
     QuietOption,
@@ -49,9 +51,9 @@ def batch_command(
     split_seconds: Optional[float] = typer.Option(
         None, "--split-seconds", help="Cut each capture into time pieces of about S seconds (rounded to the filter "
                                       "bank's hop) run in parallel; outputs equal a whole pass's.", metavar="S"),
-    spectra: bool = typer.Option(False, "--spectra", help="Also write stage spectra plots per channel."),
+    spectra: bool = PerChannelSpectraOption,
     plot_format: str = PlotFormatOption,
-    baseband: bool = typer.Option(False, "--baseband", help="Also write each channel's baseband as SigMF."),
+    baseband: bool = PerChannelBasebandOption,
     allow_nonfinite: bool = NonfiniteOption,
     force: bool = ForceOption,
     quiet: bool = QuietOption,

@@ -24,19 +24,20 @@ from .options import (
     FormatOption,
     FreqOption,
     HtmlOption,
+    IqCorrectOption,
     JsonOption,
     ModeOption,
-    NonfiniteOption,
-    IqCorrectOption,
     NoVerifyOption,
+    NonfiniteOption,
     OffsetOption,
     OptStr,
-    PpmOption,
     PlotFormatOption,
+    PpmOption,
     QuietOption,
     RateOption,
     StartOption,
     StrictOption,
+    annotate_option,
 )
 
 
@@ -74,10 +75,7 @@ def demod(
     strict: bool = StrictOption,
     no_verify: bool = NoVerifyOption,
     ppm: Optional[float] = PpmOption,
-    annotate: OptStr = typer.Option(
-        None, "--annotate", metavar="OUT.sigmf-meta",
-        help="Write SigMF metadata of the same recording with one annotation per activity segment of the "
-             "channel (the channel is then measured as by 'measure')."),
+    annotate: OptStr = annotate_option("activity segment of the channel (measured then as by 'measure')"),
     iq_correct: bool = IqCorrectOption,
 ) -> None:
     """Demodulate one channel to audio (AM envelope/coherent, USB, LSB, DSB)."""

@@ -15,17 +15,20 @@ from .options import (
     ForceOption,
     FormatOption,
     HtmlOption,
-    JsonOption,
-    NonfiniteOption,
     IqCorrectOption,
+    JsonOption,
     NoVerifyOption,
+    NonfiniteOption,
     OptStr,
-    PpmOption,
+    PerChannelBasebandOption,
+    PerChannelSpectraOption,
     PlotFormatOption,
+    PpmOption,
     QuietOption,
     RateOption,
     StartOption,
     StrictOption,
+    annotate_option,
 )
 
 
@@ -34,9 +37,9 @@ def extract_command(
     capture_path: str = CaptureArgument,
     plan_path: str = typer.Option(..., "--plan", "-p", help="Channel plan (TOML)."),
     out_dir: str = typer.Option(..., "--out-dir", "-o", help="Folder for the audio files and report.json."),
-    spectra: bool = typer.Option(False, "--spectra", help="Also write stage spectra plots per channel."),
+    spectra: bool = PerChannelSpectraOption,
     plot_format: str = PlotFormatOption,
-    baseband: bool = typer.Option(False, "--baseband", help="Also write each channel's baseband as SigMF."),
+    baseband: bool = PerChannelBasebandOption,
     html: bool = HtmlOption,
     start: OptStr = StartOption,
     duration: OptStr = DurationOption,
@@ -50,10 +53,7 @@ def extract_command(
     strict: bool = StrictOption,
     no_verify: bool = NoVerifyOption,
     ppm: Optional[float] = PpmOption,
-    annotate: OptStr = typer.Option(
-        None, "--annotate", metavar="OUT.sigmf-meta",
-        help="Write SigMF metadata of the same recording with one annotation per activity segment of every "
-             "channel."),
+    annotate: OptStr = annotate_option("activity segment of every channel"),
     iq_correct: bool = IqCorrectOption,
 ) -> None:
     """Extract every channel of a plan in one pass: <name>.wav per channel and report.json."""

@@ -8,7 +8,7 @@ error message about them into the user's words (``--tone``).
 from __future__ import annotations
 
 import re
-from typing import Optional
+from typing import Any, Optional
 
 import typer
 
@@ -49,6 +49,16 @@ JsonOption = typer.Option(False, "--json", help="Print a machine-readable JSON r
 QuietOption = typer.Option(False, "--quiet", "-q", help="No progress bar.")
 ForceOption = typer.Option(False, "--force", help="Overwrite existing output files.")
 PlotFormatOption = typer.Option("png", "--plot-format", help="Plot file format: png or svg.")
+PerChannelSpectraOption = typer.Option(False, "--spectra", help="Also write stage spectra plots per channel.")
+PerChannelBasebandOption = typer.Option(False, "--baseband", help="Also write each channel's baseband as SigMF.")
+
+
+def annotate_option(per: str) -> Any:
+    """``--annotate OUT.sigmf-meta``: SigMF metadata of the recording with one annotation per ``per``."""
+    return typer.Option(None, "--annotate", metavar="OUT.sigmf-meta",
+                        help=f"Write SigMF metadata of the same recording with one annotation per {per}.")
+
+
 HtmlOption = typer.Option(False, "--html", help="Also write report.html: channel table, activity timeline, audio players, stage spectra.")
 
 # -- the channel --------------------------------------------------------------------------------

@@ -17,16 +17,17 @@ from .options import (
     DurationOption,
     ForceOption,
     FormatOption,
-    JsonOption,
-    NonfiniteOption,
     IqCorrectOption,
+    JsonOption,
     NoVerifyOption,
+    NonfiniteOption,
     OptStr,
     PpmOption,
     QuietOption,
     RateOption,
     StartOption,
     StrictOption,
+    annotate_option,
 )
 
 __all__ = ["survey", "format_survey", "format_reference", "parse_threshold", "SURVEY_THRESHOLD_DB"]
@@ -79,9 +80,7 @@ def survey(
         None, "--reference-carrier", metavar="FREQ",
         help="True frequency of one transmitter in the capture: estimate the receiver's reference error from it "
              "(without it, --raster estimates it from the carriers that agree). Applied unless --ppm is given."),
-    annotate: OptStr = typer.Option(
-        None, "--annotate", metavar="OUT.sigmf-meta",
-        help="Write SigMF metadata of the same recording with one annotation per emission found."),
+    annotate: OptStr = annotate_option("emission found"),
     iq_correct: bool = IqCorrectOption,
 ) -> None:
     """Find the emissions in a capture: frequency, level, bandwidth, class; optionally write a channel plan."""

@@ -17,7 +17,6 @@ from __future__ import annotations
 
 import contextlib
 import csv
-import hashlib
 import json
 import os
 import platform
@@ -34,6 +33,7 @@ from typing import TYPE_CHECKING, Any, Callable, Iterable, Iterator, Literal, Ma
 
 from .. import __version__
 from ..captures.atomic import write_atomically
+from ..captures.integrity import sha256_of_file
 from ..errors import IqsiftError, OutputExistsError, ParameterError
 from ..jsonable import dumps, to_jsonable
 from ..plan import load_plan
@@ -338,14 +338,6 @@ def _peak_rss_mb() -> float | None:
     return float(kib_or_bytes) * (1.0 if sys.platform == "darwin" else 1024.0) / 1e6
 
 
-def _sha256(path: Path) -> str:
-    digest = hashlib.sha256()
-    with open(path, "rb") as handle:
-        for chunk in iter(lambda: handle.read(1 << 20), b""):
-            digest.update(chunk)
-    return digest.hexdigest()
-
-
 def _moved(result: ExtractResult, old: Path, new: Path) -> ExtractResult:
     """``result`` with the paths it names moved from folder ``old`` to ``new``."""
     def move(value: Any) -> Any:
@@ -396,7 +388,7 @@ def run_capture(task: CaptureTask, produce: Callable[[Path], ExtractResult] | No
             result = _moved(made, staging, final)
         (staging / "report.json").write_text(dumps(result.to_dict()), encoding="utf-8")
         report = result.to_dict()
-        outputs = tuple(OutputFile(str(Path(task.stem) / p.relative_to(staging)), _sha256(p))
+        outputs = tuple(OutputFile(str(Path(task.stem) / p.relative_to(staging)), sha256_of_file(p))
                         for p in sorted(staging.rglob("*")) if p.is_file())
         _commit_folder(staging, final, task.force)
     except IqsiftError as exc:
@@ -442,7 +434,7 @@ def _tasks(captures: Sequence[CaptureItem], plan: str | os.PathLike[str] | None,
         plan_path = os.path.abspath(chosen)
         if plan_path not in plan_digests:
             load_plan(plan_path)
-            plan_digests[plan_path] = _sha256(Path(plan_path))
+            plan_digests[plan_path] = sha256_of_file(Path(plan_path))
         capture_path = os.path.abspath(capture)
         stem = capture_stem(capture_path)
         if stem in (BATCH_LOG, ACTIVITY_CSV) or stem.startswith("."):
@@ -485,7 +477,7 @@ def _resumable(task: CaptureTask, line: Mapping[str, Any] | None, folder: Path) 
         return None
     for output in line.get("outputs", ()):
         path = folder / output["path"]
-        if not path.is_file() or _sha256(path) != output["sha256"]:
+        if not path.is_file() or sha256_of_file(path) != output["sha256"]:
             return None
     report_path = folder / task.stem / "report.json"
     if not any(o["path"] == str(Path(task.stem) / "report.json") for o in line.get("outputs", ())):

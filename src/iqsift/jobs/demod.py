@@ -277,17 +277,11 @@ def demod_file(
 def _write_html(receiver: Receiver, cap: Any, selection: Any, folder: Path, stem: str, output: Any, report: Any,
                 rx_report: ReceiverReport, outputs: OutputSet, plot_format: str) -> Path:
     """``report.html`` of one channel, beside its audio, in the run's OutputSet."""
-    from ..html_report import write_html_report
-    from ..units import format_hz
+    from ..html_report import capture_rows, write_html_report
 
     sel = SelectionSummary.of(cap, selection).to_dict()
-    summary = [
-        ("Capture", str(cap.path)),
-        ("Centre, rate", f"{format_hz(receiver.center_hz)}, {cap.sample_rate_hz:g} S/s"),
-        ("Processed", f"{sel['start_s']:.3f} s to {sel['start_s'] + sel['duration_s']:.3f} s "
-                      f"({sel['duration_s']:.3f} s)"),
-        ("Engine", str(receiver.design.engine)),
-    ]
+    summary = [*capture_rows(cap.path, receiver.center_hz, cap.sample_rate_hz, sel["start_s"], sel["duration_s"]),
+               ("Engine", str(receiver.design.engine))]
     write_html_report(
         folder, receivers=[receiver], stems=[stem], reports=[rx_report.to_dict()], audio_files=[output],
         capture_name=cap.path.name, summary=summary, start_s=sel["start_s"], duration_s=sel["duration_s"],

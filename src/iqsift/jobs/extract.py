@@ -294,17 +294,11 @@ def _run(extractor: Extractor, cap: Capture, selection: SampleRange, folder: Pat
 def _write_html(extractor: Extractor, cap: Capture, selection: SampleRange, folder: Path, outputs: OutputSet,
                 channels: list[ChannelResult], plot_format: str) -> Path:
     """``report.html`` and its figures, into the same OutputSet as everything else."""
-    from ..html_report import write_html_report
-    from ..units import format_hz
+    from ..html_report import capture_rows, write_html_report
 
     sel = SelectionSummary.of(cap, selection).to_dict()
-    summary = [
-        ("Capture", str(cap.path)),
-        ("Centre, rate", f"{format_hz(extractor.center_hz)}, {cap.sample_rate_hz:g} S/s"),
-        ("Processed", f"{sel['start_s']:.3f} s to {sel['start_s'] + sel['duration_s']:.3f} s "
-                      f"({sel['duration_s']:.3f} s)"),
-        ("Channels", f"{len(channels)}, in one pass through a shared filter bank"),
-    ]
+    summary = [*capture_rows(cap.path, extractor.center_hz, cap.sample_rate_hz, sel["start_s"], sel["duration_s"]),
+               ("Channels", f"{len(channels)}, in one pass through a shared filter bank")]
     write_html_report(
         folder, receivers=extractor.receivers, stems=[_stem(rx) for rx in extractor.receivers],
         reports=[c.report.to_dict() for c in channels], audio_files=[c.outputs["audio"] for c in channels],

@@ -12,7 +12,6 @@ polyphase); band filters are Kaiser-window FIRs (Kaiser 1974; Oppenheim & Schafe
 from __future__ import annotations
 
 import functools
-import hashlib
 import math
 import os
 from typing import Any, Callable, Mapping, Sequence
@@ -43,7 +42,6 @@ __all__ = [
     "rate_ratio",
     "regenerate_message",
     "rng_for",
-    "sha256_of_file",
 ]
 
 _CHUNK = 4096  # low-rate samples generated per step (fixed: keeps streams block-size independent)
@@ -296,6 +294,8 @@ def file_filtered(path: str, sha256: str, low: float, high: float, transition: f
     """
     import soundfile
 
+    from ..captures.integrity import sha256_of_file  # here, like soundfile: synth loads no reader it does not use
+
     if sha256_of_file(path) != sha256:
         raise ParameterError(f"{path}: the audio file changed since the truth was made (SHA-256 differs)")
     data, file_rate = soundfile.read(path, dtype="float64", always_2d=True)
@@ -351,15 +351,6 @@ def _file_source(rec: Mapping[str, Any], analytic: bool) -> _StreamSource:
         return scale * (w * vals).sum(axis=1)
 
     return _StreamSource(make, -INTERP_HALF, 0)
-
-
-def sha256_of_file(path: str) -> str:
-    """SHA-256 of a file's bytes (hex), read in 1 MiB pieces."""
-    digest = hashlib.sha256()
-    with open(path, "rb") as handle:
-        for chunk in iter(lambda: handle.read(1 << 20), b""):
-            digest.update(chunk)
-    return digest.hexdigest()
 
 
 def build_message(channel: Mapping[str, Any], rate: float) -> Any:

@@ -33,7 +33,6 @@ from .sources import (
     noise_gain,
     rate_ratio,
     rng_for,
-    sha256_of_file,
 )
 
 __all__ = ["build_truth"]
@@ -79,6 +78,8 @@ def _message_record(spec: ChannelSpec, rate: float, entropy: int) -> dict[str, A
         })
         return rec
     assert msg.resolved_path is not None  # the parser resolves the path of every file message
+    from ..captures.integrity import sha256_of_file
+
     sha = sha256_of_file(msg.resolved_path)
     rec.update({"path": msg.path, "resolved_path": msg.resolved_path, "sha256": sha, "loop": msg.loop})
     y, first, file_rate, frames = file_filtered(msg.resolved_path, sha, msg.low_hz, msg.high_hz, transition,
