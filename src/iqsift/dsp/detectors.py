@@ -61,13 +61,13 @@ from typing import Any
 import numpy as np
 from numpy.typing import ArrayLike
 from scipy import fft as sfft
-from scipy import signal
 
 from .. import checks
 from ..errors import IqsiftWarning, ParameterError
 from ..modes import MODES
 from .filters import carrier_lowpass_taps, sideband_bandpass_taps
 from .stages import Stage
+from .stages.linear import fft_convolve_valid, fir_valid
 
 __all__ = [
     "DETECTOR_MODES",
@@ -231,13 +231,15 @@ class SidebandDetector(_Detector):
         return None if self._taps is None else self._taps.copy()
 
     def _reset_state(self) -> None:
-        self._zi = None if self._taps is None else np.zeros(len(self._taps) - 1, np.complex128)
+        self._hist = None if self._taps is None else np.zeros(len(self._taps) - 1, np.complex128)
 
     def _filter(self, x: np.ndarray) -> np.ndarray:
         if self._taps is None:
             return x
-        y, self._zi = signal.lfilter(self._taps, [1.0], x, zi=self._zi)
-        return y
+        assert self._hist is not None  # set with the taps
+        buf = np.concatenate((self._hist, x))
+        self._hist = buf[x.size :]
+        return fir_valid(buf, self._taps)
 
     def process(self, block: ArrayLike) -> np.ndarray:
         """Return ``Re(z)`` (after the band-pass, if any) for ``block``, float32, same length."""
@@ -320,7 +322,7 @@ class _CarrierTracker(_Detector):
         if self._win_len < 16:
             raise ParameterError(f"window_s: got {window_s!r} s, only {self._win_len} samples; need >= 16 samples")
         self._nfft = 1 << int(math.ceil(math.log2(2 * self._win_len)))
-        self._window = signal.windows.hann(self._win_len, sym=True)
+        self._window = np.hanning(self._win_len)  # the symmetric Hann window (scipy.signal.windows.hann, sym=True)
         k_max = int(math.floor(self.max_offset_hz / fs * self._nfft))
         self._search_k = np.arange(-k_max, k_max + 1)  # bins of the signal's spectrum within ±max_offset_hz
         self._taps = carrier_lowpass_taps(fs, carrier_stop_hz, carrier_atten_db)
@@ -413,7 +415,7 @@ class _CarrierTracker(_Detector):
     def _lowpass(self, x: np.ndarray) -> np.ndarray:
         """Causal FIR with the carrier taps; state carried in ``_fir_hist``."""
         buf = np.concatenate((self._fir_hist, x))
-        y = signal.fftconvolve(buf, self._taps, mode="valid")
+        y = fft_convolve_valid(buf, self._taps)
         self._fir_hist = buf[len(buf) - (len(self._taps) - 1) :]
         return y
 

@@ -12,7 +12,6 @@ from dataclasses import dataclass
 from typing import Any, ClassVar
 
 import numpy as np
-from scipy import signal as _signal
 
 from .. import checks
 from ..errors import ParameterError
@@ -135,6 +134,7 @@ def audio_quality(
     signal_power = 0.5 * (a * a + b * b) * float(g(f0))
 
     resid = data - model
+    from scipy import signal as _signal  # here only: keeps scipy.signal out of start-up
     win = _signal.windows.blackmanharris(n, sym=False)
     spec = np.fft.rfft(resid * win)
     pbin = (np.abs(spec) ** 2) / (n * np.sum(win**2))

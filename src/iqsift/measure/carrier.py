@@ -18,7 +18,6 @@ from dataclasses import dataclass
 from typing import Any, ClassVar
 
 import numpy as np
-from scipy import signal as _signal
 
 from .. import checks
 from ..errors import ParameterError
@@ -163,6 +162,7 @@ class CarrierAccumulator:
         self._len = length
         self._hop = length // 2
         self._nfft = next_pow2(4 * length)
+        from scipy import signal as _signal  # here only: keeps scipy.signal out of start-up
         self._window = _signal.windows.hann(length, sym=True)
         freqs = np.fft.fftfreq(self._nfft, 1.0 / self._rate)
         self._dist = (freqs - self._nominal + self._rate / 2.0) % self._rate - self._rate / 2.0
@@ -246,6 +246,7 @@ class CarrierAccumulator:
                 raise ParameterError(
                     f"carrier: {self._fed} samples fed; at least 16 are needed to estimate a carrier"
                 )
+            from scipy import signal as _signal  # here only: keeps scipy.signal out of start-up
             window = _signal.windows.hann(n, sym=True)
             spec = np.fft.fft(self._buf * window, self._nfft)
             avg = spec.real**2 + spec.imag**2

@@ -13,7 +13,6 @@ from dataclasses import dataclass
 from typing import Any, ClassVar
 
 import numpy as np
-from scipy import signal as _signal
 
 from .. import checks
 from ..errors import ParameterError
@@ -221,6 +220,7 @@ def _cycle_extremes(lp: np.ndarray, rate_hz: float, f0: float, edge: int) -> tup
         stop = min(n - edge, start + chunk)
         lo, hi = max(0, start - pad), min(n, stop + pad)
         piece = lp[lo:hi]
+        from scipy import signal as _signal  # here only: keeps scipy.signal out of start-up
         fine = _signal.resample_poly(piece - piece.mean(), up, 1) + piece.mean() if up > 1 else piece
         fine = fine[(start - lo) * up : (stop - lo) * up]
         ncyc = fine.size // cycle_up
@@ -237,6 +237,7 @@ def _cycle_extremes(lp: np.ndarray, rate_hz: float, f0: float, edge: int) -> tup
 def _lowpass_numtaps(rate_hz: float, cutoff_hz: float) -> int:
     # transition width 10 % of the cutoff (at least 1 % of the rate); Kaiser 60 dB
     width = max(0.1 * cutoff_hz, 0.01 * rate_hz)
+    from scipy import signal as _signal  # here only: keeps scipy.signal out of start-up
     numtaps, _ = _signal.kaiserord(60.0, width / (0.5 * rate_hz))
     return int(numtaps) | 1
 
@@ -252,6 +253,7 @@ def _lowpass_zero_phase(x: np.ndarray, rate_hz: float, cutoff_hz: float) -> np.n
         return x.copy()
     numtaps = _lowpass_numtaps(rate_hz, cutoff_hz)
     width = max(0.1 * cutoff_hz, 0.01 * rate_hz)
+    from scipy import signal as _signal  # here only: keeps scipy.signal out of start-up
     _, beta = _signal.kaiserord(60.0, width / (0.5 * rate_hz))
     taps = _signal.firwin(numtaps, cutoff_hz + width / 2.0, window=("kaiser", beta), fs=rate_hz)
     return _signal.fftconvolve(x - mean, taps, mode="same") + mean
@@ -294,6 +296,7 @@ def sideband_levels_dbc(
         raise ParameterError(
             f"tone_hz: {fm:g} Hz is closer than 8 bins ({8 * df:g} Hz) to the carrier for a {n}-sample record; use a longer record"
         )
+    from scipy import signal as _signal  # here only: keeps scipy.signal out of start-up
     w = _signal.windows.flattop(n, sym=False)
     amp = np.abs(np.fft.fft(x * w)) / np.sum(w)
 

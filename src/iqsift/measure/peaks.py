@@ -5,7 +5,6 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy import signal as _signal
 
 from ..errors import ParameterError
 from .samples import TINY_POWER
@@ -40,6 +39,7 @@ def interpolated_peak_hz(x: np.ndarray, rate_hz: float, lo_hz: float, hi_hz: flo
     """
     n = x.size
     nfft = next_pow2(2 * n)
+    from scipy import signal as _signal  # here only: keeps scipy.signal out of start-up
     w = _signal.windows.blackmanharris(n, sym=False)
     p = np.abs(np.fft.rfft((x - x.mean()) * w, nfft)) ** 2
     f = np.arange(p.size) * rate_hz / nfft

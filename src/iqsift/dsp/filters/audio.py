@@ -15,10 +15,10 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy import signal
 
 from ... import checks
 from ...errors import ParameterError
+from .kaiser import frequency_response, kaiser_fir, kaiser_order
 
 __all__ = [
     "BandpassDesign",
@@ -72,18 +72,16 @@ class BandpassDesign:
 
 
 def _kaiser_bandpass(fs: float, lo: float, hi: float, tw: float, a: float) -> tuple[np.ndarray, float]:
-    numtaps, beta = signal.kaiserord(a, tw / (0.5 * fs))
+    numtaps, beta = kaiser_order(a, tw / (0.5 * fs))
     if numtaps % 2 == 0:
         numtaps += 1
-    taps = signal.firwin(
-        numtaps, [lo - tw / 2.0, hi + tw / 2.0], pass_zero=False, window=("kaiser", beta), fs=fs
-    )
+    taps = kaiser_fir(numtaps, [lo - tw / 2.0, hi + tw / 2.0], beta, fs, pass_zero=False)
     return taps, beta
 
 
 def _measure_bandpass(taps: np.ndarray, fs: float, lo: float, hi: float, tw: float) -> tuple[float, float]:
-    """(max stop-band gain dB, max |pass-band deviation| dB) from scipy.signal.freqz."""
-    w, hresp = signal.freqz(taps, 1, worN=max(8192, 16 * taps.size), fs=fs)
+    """(max stop-band gain dB, max |pass-band deviation| dB) on the freqz grid (zero-padded FFT)."""
+    w, hresp = frequency_response(taps, max(8192, 16 * taps.size), fs)
     mag = np.abs(hresp)
     pb = (w >= lo) & (w <= hi)
     sb = (w <= lo - tw) | (w >= hi + tw)
@@ -118,14 +116,14 @@ def design_audio_bandpass(
 ) -> BandpassDesign:
     """Linear-phase Kaiser-window band-pass FIR for the voice band, verified on its taps.
 
-    Designed with ``scipy.signal.kaiserord`` (Kaiser 1974; Oppenheim & Schafer,
-    DTSP, §7.6: β and N from the attenuation A and the transition width) and
-    ``scipy.signal.firwin``: pass band [low_hz, high_hz], stop bands below
+    Designed with :func:`.kaiser.kaiser_order` (as ``scipy.signal.kaiserord``; Kaiser 1974;
+    Oppenheim & Schafer, DTSP, §7.6: β and N from the attenuation A and the transition width) and
+    :func:`.kaiser.kaiser_fir` (as ``scipy.signal.firwin``): pass band [low_hz, high_hz], stop bands below
     low_hz − transition_hz and above high_hz + transition_hz (firwin's cutoffs
     sit mid-transition, at low − tw/2 and high + tw/2; N made odd, type I).
     Ripple δ ≈ 10^(−A/20) in both bands (window method). Kaiser's length
     formula is approximate (at A = 60 dB it gave −58.8 dB measured), so the
-    taps are checked with ``scipy.signal.freqz`` and the design attenuation is
+    taps are checked on the ``freqz`` grid (:func:`.kaiser.frequency_response`) and the design attenuation is
     raised in 0.5 dB steps until the measured stop band is at or below
     −atten_db.
 
@@ -180,7 +178,7 @@ def sideband_bandpass_taps(
     """One-sided complex band-pass selecting one sideband of a carrier at 0 Hz.
 
     A Kaiser-window low-pass prototype ``h[n]`` (windowed ideal low-pass,
-    Kaiser 1974; length and β from :func:`scipy.signal.kaiserord`) is shifted to
+    Kaiser 1974; length and β from :func:`.kaiser.kaiser_order`) is shifted to
     the band centre ``f0 = ±(low_hz + high_hz)/2``: ``h_c[n] = e^{j 2π f0 (n - D)/fs}·h[n]``
     ("one-sided complex band-pass = e^{jω0 n}·low-pass", Oppenheim & Schafer,
     *Discrete-Time Signal Processing*, ch. 7), with the index counted from the
@@ -223,10 +221,10 @@ def sideband_bandpass_taps(
         raise ParameterError(
             f"transition_hz: got {tw:g} Hz; half-bandwidth + transition must stay below rate/2 = {rate / 2.0:g} Hz"
         )
-    numtaps, beta = signal.kaiserord(atten, tw / (rate / 2.0))
+    numtaps, beta = kaiser_order(atten, tw / (rate / 2.0))
     numtaps |= 1  # odd: integer delay
     cutoff = half + tw / 2.0  # Kaiser design: passband edge = cutoff - tw/2
-    proto = signal.firwin(numtaps, cutoff, window=("kaiser", beta), fs=rate)
+    proto = kaiser_fir(numtaps, cutoff, beta, rate)
     f0 = (lo + hi) / 2.0 * (1.0 if side == "usb" else -1.0)
     n = np.arange(numtaps) - (numtaps - 1) // 2
     return proto * np.exp(1j * _TWO_PI * f0 * n / rate)

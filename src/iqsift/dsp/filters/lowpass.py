@@ -46,7 +46,6 @@ from typing import Any, Callable, Iterable
 
 import numpy as np
 from scipy import fft as sp_fft
-from scipy import signal
 
 from ... import checks
 from ...errors import ParameterError
@@ -495,6 +494,8 @@ def _design_kaiser(rate: float, fp: float, fs: float, ripple: float, atten: floa
 
 def _remez_try(n: int, rate: float, fp: float, fs: float, weight_stop: float,
                ripple: float, atten: float) -> tuple[np.ndarray, float, float] | None:
+    from scipy import signal  # here only: equiripple is not the default design (start-up stays light)
+
     try:
         taps = signal.remez(n, [0.0, fp, fs, rate / 2.0], [1.0, 0.0], weight=[1.0, weight_stop], fs=rate)
     except ValueError:  # "Failure to converge": treat as not meeting the spec

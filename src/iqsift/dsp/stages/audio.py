@@ -6,7 +6,6 @@ import math
 from typing import Any
 
 import numpy as np
-import scipy.signal as ssig
 from numpy.typing import ArrayLike
 
 from ... import checks
@@ -14,6 +13,7 @@ from ...errors import ParameterError
 from ..filters import BandpassDesign, dc_block_coefficient, design_audio_bandpass
 from .base import Stage, run_once
 from .fir import FirFilter
+from .linear import first_order_recursion
 
 __all__ = ["DCBlock", "dc_block", "AGC", "agc", "AudioBandpass", "audio_bandpass"]
 
@@ -24,8 +24,10 @@ class DCBlock(Stage):
     R. Lyons, *Understanding Digital Signal Processing* (3rd ed.), DC removal
     section (§13.23, memory for the number): a zero at DC and a pole at ``a``
     just inside the unit circle. ``a`` puts the −3.01 dB point (absolute,
-    |H| = 1/√2) at ``cutoff_hz`` (:func:`dc_block_coefficient`). Applied with
-    ``scipy.signal.lfilter([1, −1], [1, −a], x, zi=...)`` in float64.
+    |H| = 1/√2) at ``cutoff_hz`` (:func:`dc_block_coefficient`). Computed in
+    float64 as the difference ``u[n] = x[n] − x[n−1]`` followed by the recursion
+    ``y[n] = u[n] + a·y[n−1]`` (:func:`.linear.first_order_recursion`, vectorised),
+    equal to ``scipy.signal.lfilter([1, −1], [1, −a], x)`` to float64 rounding.
 
     Parameters
     ----------
@@ -53,8 +55,6 @@ class DCBlock(Stage):
         self._delay = 0.0
         self._cutoff = fc
         self._a = dc_block_coefficient(fs, fc)
-        self._b_coef = np.array([1.0, -1.0])
-        self._a_coef = np.array([1.0, -self._a])
         self.reset()
 
     @property
@@ -68,15 +68,18 @@ class DCBlock(Stage):
 
     def reset(self) -> None:
         self._complex_seen = False
-        self._zi = np.zeros(1, dtype=np.float64)
+        self._x_prev: complex | float = 0.0  # last input
+        self._y_prev: complex | float = 0.0  # last output
 
     def process(self, block: ArrayLike) -> np.ndarray:
         x = self._prep(block)
-        if x.dtype.kind == "c" and self._zi.dtype.kind != "c":
-            self._zi = self._zi.astype(np.complex128)
         if x.size == 0:
             return self._empty()
-        y, self._zi = ssig.lfilter(self._b_coef, self._a_coef, x, zi=self._zi)
+        u = np.empty(x.size, np.result_type(x, np.float64))
+        u[0] = x[0] - self._x_prev
+        np.subtract(x[1:], x[:-1], out=u[1:])
+        y = first_order_recursion(u, self._a, self._y_prev)
+        self._x_prev, self._y_prev = x[-1].item(), y[-1].item()
         return self._out(y)
 
 

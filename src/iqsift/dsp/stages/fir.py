@@ -11,13 +11,13 @@ from fractions import Fraction
 
 import numpy as np
 import scipy.fft as sfft
-import scipy.signal as ssig
 from numpy.lib.stride_tricks import sliding_window_view
 from numpy.typing import ArrayLike
 
 from ... import checks
 from ...errors import ParameterError
 from .base import Stage, checked_taps, run_once
+from .linear import fir_valid, polyphase_upfirdn
 from .oscillator import ExactPhase, exact_ratio
 
 __all__ = [
@@ -54,7 +54,8 @@ class FirFilter(Stage):
 
     Two methods, same result (to float64 rounding):
 
-    * ``"direct"``: ``scipy.signal.lfilter`` with its ``zi`` state carried.
+    * ``"direct"``: the convolution sum against the last N − 1 inputs carried
+      (:func:`.linear.fir_valid`).
     * ``"fft"``: overlap-save fast convolution (Oppenheim & Schafer, DTSP,
       §8.7) with ``scipy.fft``; FFT size ``next_fast_len(max(8 N, 256))``,
       hop = FFT size − (N − 1); blocks shorter than 64 samples are done by
@@ -135,13 +136,12 @@ class FirFilter(Stage):
             self._state = self._state.astype(np.complex128)
         if x.size == 0:
             return self._empty()
-        if self._method == "direct":
-            y, self._state = ssig.lfilter(self._h, [1.0], x, zi=self._state)
-            return self._out(y)
-        # fft method: _state holds the last N-1 inputs
+        # _state holds the last N-1 inputs
         m = self._h.size - 1
         buf = np.concatenate([self._state, x])
-        if x.size < self._SMALL_BLOCK:
+        if self._method == "direct":
+            y = fir_valid(buf, self._h)
+        elif x.size < self._SMALL_BLOCK:
             y = np.convolve(buf, self._h, mode="valid")
         else:
             y = self._overlap_save(buf, x.size)
@@ -230,7 +230,7 @@ class UpFirDn:
         z = (self.s * up) % down
         hz = np.concatenate([np.zeros(z, dtype=h.dtype), h]) if z else h
         j0 = self.m_next - (self.s * up - z) // down
-        y = ssig.upfirdn(hz, buf, up, down, axis=-1)[..., j0 : j0 + count]
+        y = polyphase_upfirdn(hz, buf, up, down, j0, count)
         self.m_next = m_stop
         n_min = -(-(m_stop * down - h.size + 1) // up)
         drop = min(max(0, n_min - self.s), buf.shape[-1])
@@ -250,7 +250,7 @@ class FirDecimator(Stage):
     Output ``y[m] = sum_k h[k] x[m·D − k]``, i.e.
     ``scipy.signal.lfilter(h, 1, x)[::D]`` (the first output uses x[0]);
     ceil(n_in/D) outputs for n_in inputs, nothing held (``flush`` is empty).
-    Computed with ``scipy.signal.upfirdn`` (polyphase, only the kept outputs)
+    Computed polyphase (only the kept outputs, :func:`.linear.polyphase_upfirdn`)
     on the carried history, so the decimation phase continues across blocks.
 
     With ``translate_hz = f0`` (frequency-translating FIR decimator, f. harris,
