@@ -43,6 +43,10 @@ arbitrarily long input in bounded memory: at most ``max_columns`` columns; when
 full, adjacent columns are merged in pairs (power averaged) and every column
 thereafter averages twice as many segments.
 
+Single-precision input (complex64, float32) is windowed and transformed in float32
+and summed in float64; double-precision input in float64 throughout (the engine and
+its accuracy: :mod:`iqsift.spectra.segments`).
+
 Asking for a result before one whole segment has been seen raises
 :class:`~iqsift.errors.ParameterError` (the fix is more samples or a smaller
 ``nperseg``); check :attr:`WelchAccumulator.ready` first when that can happen.

@@ -10,16 +10,18 @@ accumulators in :mod:`iqsift.spectra` average and scale them.
 Precision follows the input. Single-precision samples (complex64, the project's
 internal sample type, or float32) are windowed and transformed in single
 precision: the samples themselves carry 24-bit mantissas, and a float32 transform
-adds rounding noise about 140 dB below the segment's power (relative error of the
-order of ``eps·sqrt(log2 N)``, eps = 2^-24; Higham, "Accuracy and Stability of
-Numerical Algorithms", 2nd ed., sec. 24.1), far below any level the project
-reports to 0.01 dB. The periodograms are summed in float64 by the accumulators.
+adds rounding noise of relative size about ``eps·sqrt(log2 N)`` of the segment's
+whole power (eps = 2^-24; Higham, "Accuracy and Stability of Numerical Algorithms",
+2nd ed., sec. 24.1): a bin 70 dB below the strongest line moves by about 1e-4 dB
+(measured against scipy.signal.welch in double precision, tests/test_spectra.py),
+a noise floor taken over many bins by far less. The periodograms are summed in
+float64 by the accumulators.
 Double-precision and integer input is windowed and transformed in float64.
 
 Each segment is windowed straight from the stream into a preallocated buffer (one
-pass, no strided copy followed by a multiply), transformed in place, and squared
-(``re² + im²`` in float64, ``hypot(re, im)²`` in float32); the samples a block leaves unfinished are kept and only the few
-segments that straddle two blocks are framed from a joined copy.
+pass, no strided copy followed by a multiply), transformed in place, and squared (``re² + im²`` in float64,
+``hypot(re, im)²`` in float32); the samples a block leaves unfinished are kept and
+only the few segments that straddle two blocks are framed from a joined copy.
 """
 
 from __future__ import annotations
