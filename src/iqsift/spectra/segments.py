@@ -290,7 +290,7 @@ class SegmentStream:
         single = frames.dtype in (np.float32, np.complex64)
         real_type = np.float32 if single else np.float64
         work_type = real_type if self._onesided else (np.complex64 if single else np.complex128)
-        win = self._win32 if single else self._win
+        win: np.ndarray = self._win32 if single else self._win
         if single and not self._onesided:
             win = self._win_c64  # complex64 × complex64: no mixed-type casting loop
         workers = _fft_workers()
