@@ -43,6 +43,10 @@ arbitrarily long input in bounded memory: at most ``max_columns`` columns; when
 full, adjacent columns are merged in pairs (power averaged) and every column
 thereafter averages twice as many segments.
 
+Single-precision input (complex64, float32) is windowed and transformed in float32
+and summed in float64; double-precision input in float64 throughout (the engine and
+its accuracy: :mod:`iqsift.spectra.segments`).
+
 Asking for a result before one whole segment has been seen raises
 :class:`~iqsift.errors.ParameterError` (the fix is more samples or a smaller
 ``nperseg``); check :attr:`WelchAccumulator.ready` first when that can happen.
@@ -50,17 +54,15 @@ Asking for a result before one whole segment has been seen raises
 
 from __future__ import annotations
 
-import math
 import os
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any, Callable, Iterator, NamedTuple
+from typing import Any, Callable, NamedTuple
 
 import numpy as np
-import scipy.fft
 
-from . import checks
-from .errors import ParameterError
+from ..errors import ParameterError
+from .segments import SegmentStream, check_count
 
 __all__ = [
     "Spectrum",
@@ -76,20 +78,6 @@ so every value stays finite and JSON-ready."""
 
 _POWER_FLOOR = 10.0 ** (DB_FLOOR / 10.0)
 
-# Samples framed at once per batched FFT (bounds the temporary memory of one feed).
-_BATCH_SAMPLES = 1 << 21
-_FFT_SAMPLES = 1 << 18
-"""Samples transformed per FFT call inside a batch (bounds the complex128 temporaries to 4 MiB)."""
-
-
-def _fft_workers() -> int:
-    """Threads for the segment transforms: the CPUs this process may use, at most 4."""
-    try:
-        available = len(os.sched_getaffinity(0))
-    except (AttributeError, OSError):  # not on Linux
-        available = os.cpu_count() or 1
-    return max(1, min(4, available))
-
 _UNITS = {"density": "dBFS/Hz", "spectrum": "dBFS"}
 
 
@@ -103,21 +91,9 @@ def _to_db(power: np.ndarray) -> np.ndarray:
 
 def _atomic_write(path: str | os.PathLike, write: Callable[[Any], None], *, binary: bool, force: bool = True) -> Path:
     """Write a file atomically (see :func:`iqsift.captures.atomic.write_atomically`)."""
-    from .captures.atomic import write_atomically
+    from ..captures.atomic import write_atomically
 
     return write_atomically(path, write, binary=binary, force=force)
-
-
-def _check_rate(rate_hz: float, name: str = "rate_hz") -> float:
-    return checks.positive(name, rate_hz)
-
-
-def _check_int(value: Any, name: str, minimum: int) -> int:
-    if isinstance(value, bool) or not isinstance(value, (int, np.integer)):
-        raise ParameterError(f"{name}: must be an integer >= {minimum}, got {value!r}")
-    if int(value) < minimum:
-        raise ParameterError(f"{name}: must be an integer >= {minimum}, got {value!r}")
-    return int(value)
 
 
 def _check_scaling(scaling: str) -> str:
@@ -251,222 +227,6 @@ class SpectrogramResult(NamedTuple):
     units: str
 
 
-# ----------------------------------------------------------------------------- framing core
-
-
-class _SegmentStream:
-    """Windowed, batched periodograms of a stream, segments continuing across blocks.
-
-    Yields raw ``|FFT(w·seg)|²`` rows (float64, unscaled, natural FFT order; one-sided
-    rfft bins for a real stream).
-    """
-
-    def __init__(
-        self,
-        rate_hz: float,
-        nperseg: int,
-        overlap: float,
-        window: Any,
-        center_hz: float,
-        detrend: Any,
-        onesided: bool | None,
-        noverlap: int | None,
-    ) -> None:
-        self._rate = _check_rate(rate_hz)
-        self._nperseg = _check_int(nperseg, "nperseg", 2)
-        if noverlap is None:
-            try:
-                ov = float(overlap)
-            except (TypeError, ValueError):
-                raise ParameterError(f"overlap: must be a fraction in [0, 1), got {overlap!r}") from None
-            if not (0.0 <= ov < 1.0):
-                raise ParameterError(f"overlap: must be a fraction in [0, 1), got {overlap!r}")
-            # floor, like scipy's default noverlap = nperseg // 2 for overlap 0.5
-            nov = min(int(math.floor(ov * self._nperseg + 1e-9)), self._nperseg - 1)
-        else:
-            nov = _check_int(noverlap, "noverlap", 0)
-            if nov >= self._nperseg:
-                raise ParameterError(f"noverlap: must be < nperseg={self._nperseg}, got {noverlap!r}")
-        self._noverlap = nov
-        self._step = self._nperseg - nov
-        try:
-            self._center = float(center_hz)
-        except (TypeError, ValueError):
-            raise ParameterError(f"center_hz: must be a frequency in Hz, got {center_hz!r}") from None
-        if not math.isfinite(self._center):
-            raise ParameterError(f"center_hz: must be finite, got {center_hz!r}")
-        if detrend in (None, False, "none"):
-            self._detrend = False
-        elif detrend == "constant":
-            self._detrend = True
-        else:
-            raise ParameterError(f"detrend: must be None/False/'none' or 'constant', got {detrend!r}")
-        if onesided not in (None, True, False):
-            raise ParameterError(f"onesided: must be None (from the input type), True or False, got {onesided!r}")
-        self._onesided_request = onesided
-        if isinstance(window, str) or (isinstance(window, tuple) and window and isinstance(window[0], str)):
-            try:
-                import scipy.signal  # here only: the window design is its one use (start-up stays light)
-
-                win = scipy.signal.get_window(window, self._nperseg, fftbins=True)
-            except (ValueError, TypeError) as exc:
-                raise ParameterError(f"window: scipy.signal.get_window refused {window!r} ({exc})") from None
-            self._window_name = window if isinstance(window, str) else repr(window)
-        else:
-            win = np.asarray(window, dtype=np.float64)
-            if win.shape != (self._nperseg,) or not np.all(np.isfinite(win)) or not np.any(win):
-                raise ParameterError(
-                    f"window: an array window must be {self._nperseg} finite values, not all zero; got shape {win.shape}"
-                )
-            self._window_name = "custom"
-        self._win = np.ascontiguousarray(win, dtype=np.float64)
-        self._s1 = float(np.sum(self._win))
-        self._s2 = float(np.sum(self._win**2))
-        self.reset()
-
-    def reset(self) -> None:
-        self._onesided: bool | None = self._onesided_request
-        self._tail = np.zeros(0, dtype=np.complex128)
-        self._samples = 0
-        self._segments_seen = 0
-
-    # -- properties
-    @property
-    def rate_hz(self) -> float:
-        return self._rate
-
-    @property
-    def nperseg(self) -> int:
-        return self._nperseg
-
-    @property
-    def noverlap(self) -> int:
-        return self._noverlap
-
-    @property
-    def center_hz(self) -> float:
-        return self._center
-
-    @property
-    def window(self) -> np.ndarray:
-        w = self._win.view()
-        w.setflags(write=False)
-        return w
-
-    @property
-    def enbw_hz(self) -> float:
-        return self._rate * self._s2 / (self._s1 * self._s1)
-
-    @property
-    def samples_fed(self) -> int:
-        return self._samples
-
-    def _scale(self, scaling: str) -> float:
-        if scaling == "density":
-            return 1.0 / (self._rate * self._s2)
-        return 1.0 / (self._s1 * self._s1)
-
-    def _nbins(self) -> int:
-        return self._nperseg // 2 + 1 if self._onesided else self._nperseg
-
-    def _prepare(self, block: Any) -> np.ndarray | None:
-        x = np.asarray(block)
-        if x.ndim != 1:
-            raise ParameterError(f"block: must be a 1-D array of samples, got shape {x.shape}")
-        if x.dtype.kind not in "biufc":
-            raise ParameterError(f"block: must hold numbers, got dtype {x.dtype}")
-        if x.size == 0:
-            return None
-        is_complex = np.iscomplexobj(x)
-        if self._onesided is None:
-            self._onesided = not is_complex
-        if self._onesided:
-            if is_complex:
-                if np.any(x.imag != 0):
-                    raise ParameterError(
-                        "block: complex samples with a non-zero imaginary part fed to a one-sided "
-                        "(real-stream) spectrum; use onesided=False"
-                    )
-                x = x.real
-            # float32 stays float32 until a segment is windowed (the float64 product is the same)
-            if x.dtype not in (np.float32, np.float64):
-                x = x.astype(np.float64)
-            if self._tail.dtype.kind == "c":
-                self._tail = self._tail.real.astype(np.float64)
-        elif x.dtype not in (np.complex64, np.complex128):
-            x = x.astype(np.complex128)
-        self._samples += x.size
-        return x
-
-    def _joined(self, block: Any) -> np.ndarray | None:
-        """The unfinished tail followed by ``block`` (in the narrower of their types: exact)."""
-        prepared = self._prepare(block)
-        if prepared is None or not self._tail.size:
-            return prepared
-        return np.concatenate([self._tail, prepared])
-
-    def periodograms(self, block: Any, limit: int | None = None) -> Iterator[np.ndarray]:
-        """Raw periodogram rows of every segment completed by ``block`` (at most ``limit``)."""
-        buf = self._joined(block)
-        if buf is None:
-            return
-        n, nps, step = buf.size, self._nperseg, self._step
-        nseg = (n - nps) // step + 1 if n >= nps else 0
-        if limit is not None:
-            nseg = min(nseg, max(limit, 0))
-        if nseg == 0:
-            self._tail = buf.copy() if limit != 0 else buf[:0].copy()
-            return
-        consumed = nseg * step
-        self._tail = buf[consumed:].copy() if limit is None or nseg < limit else buf[:0].copy()
-        frames = np.lib.stride_tricks.sliding_window_view(buf, nps)[::step]
-        batch = max(1, _BATCH_SAMPLES // nps)
-        for start in range(0, nseg, batch):
-            yield self._batch_power(frames[start : min(start + batch, nseg)])
-
-    def _batch_power(self, frames: np.ndarray) -> np.ndarray:
-        """|FFT(window · segment)|² of each row of ``frames`` (float64, rows = segments).
-
-        The rows are independent transforms: they are done a few at a time (a bounded temporary)
-        and spread over threads, which gives the same numbers as one call over the whole batch.
-        """
-        rows = frames.shape[0]
-        power = np.empty((rows, self._nbins()), np.float64)
-        step = max(1, _FFT_SAMPLES // self._nperseg)
-        workers = _fft_workers()
-        for first in range(0, rows, step):
-            seg = frames[first : first + step]
-            if self._detrend:
-                seg = seg.astype(np.float64 if self._onesided else np.complex128)
-                seg = seg - seg.mean(axis=1, keepdims=True)
-            seg = seg * self._win  # float64 window: the product is float64 / complex128
-            if self._onesided:
-                spec = scipy.fft.rfft(seg, axis=1, overwrite_x=True, workers=workers)
-            else:
-                spec = scipy.fft.fft(seg, axis=1, overwrite_x=True, workers=workers)
-            out = power[first : first + step]
-            np.multiply(spec.real, spec.real, out=out)  # |X|² = re² + im²
-            out += np.multiply(spec.imag, spec.imag)
-        self._segments_seen += rows
-        return power
-
-    def _finish(self, mean_raw: np.ndarray, scaling: str) -> tuple[np.ndarray, np.ndarray]:
-        """Scale a raw mean periodogram (last axis = bins); returns (freqs_hz, power)."""
-        p = mean_raw * self._scale(scaling)
-        nps = self._nperseg
-        if self._onesided:
-            p = p.copy()
-            if nps % 2 == 0:
-                p[..., 1:-1] *= 2.0
-            else:
-                p[..., 1:] *= 2.0
-            freqs = scipy.fft.rfftfreq(nps, 1.0 / self._rate)
-        else:
-            p = scipy.fft.fftshift(p, axes=-1)
-            freqs = scipy.fft.fftshift(scipy.fft.fftfreq(nps, 1.0 / self._rate))
-        return freqs + self._center, p
-
-
 # ----------------------------------------------------------------------------- Welch
 
 
@@ -527,9 +287,9 @@ class WelchAccumulator:
         onesided: bool | None = None,
         noverlap: int | None = None,
     ) -> None:
-        self._stream = _SegmentStream(rate_hz, nperseg, overlap, window, center_hz, detrend, onesided, noverlap)
+        self._stream = SegmentStream(rate_hz, nperseg, overlap, window, center_hz, detrend, onesided, noverlap)
         self.name = str(name)
-        self._max_segments = None if max_segments is None else _check_int(max_segments, "max_segments", 1)
+        self._max_segments = None if max_segments is None else check_count(max_segments, "max_segments", 1)
         self.reset()
 
     def reset(self) -> None:
@@ -560,7 +320,7 @@ class WelchAccumulator:
     @property
     def onesided(self) -> bool | None:
         """One-sided (real stream) or not; None until the first non-empty block."""
-        return self._stream._onesided
+        return self._stream.onesided
 
     def feed(self, block: Any) -> "WelchAccumulator":
         """Add a block of samples (any length, including 0); returns self.
@@ -575,10 +335,10 @@ class WelchAccumulator:
                 x = np.asarray(block)
                 if x.ndim != 1:
                     raise ParameterError(f"block: must be a 1-D array of samples, got shape {x.shape}")
-                self._stream._samples += x.size
+                self._stream.count_unanalysed(x.size)
                 return self
         for rows in self._stream.periodograms(block, limit):
-            part = rows.sum(axis=0)
+            part = np.add.reduce(rows, axis=0, dtype=np.float64)  # float32 rows summed in float64
             if self._sum is None:
                 self._sum = part
             else:
@@ -607,7 +367,7 @@ class WelchAccumulator:
                 f"spectrum {self.name or '(unnamed)'}: no complete segment yet ({self.samples_fed} samples fed, "
                 f"nperseg={self.nperseg}); feed at least nperseg samples or lower nperseg"
             )
-        freqs, power = self._stream._finish(self._sum / self._count, scaling)
+        freqs, power = self._stream.finish(self._sum / self._count, scaling)
         return Spectrum(
             name=self.name,
             freqs_hz=freqs,
@@ -617,10 +377,10 @@ class WelchAccumulator:
             center_hz=self.center_hz,
             segments_averaged=self._count,
             enbw_hz=self.enbw_hz,
-            onesided=bool(self._stream._onesided),
+            onesided=bool(self._stream.onesided),
             scaling=scaling,
             nperseg=self.nperseg,
-            window=self._stream._window_name,
+            window=self._stream.window_name,
         )
 
     def density(self) -> Spectrum:
@@ -675,8 +435,8 @@ class SpectrogramAccumulator:
         noverlap: int | None = None,
         scaling: str = "density",
     ) -> None:
-        self._stream = _SegmentStream(rate_hz, nperseg, overlap, window, center_hz, detrend, onesided, noverlap)
-        self._max_columns = _check_int(max_columns, "max_columns", 2)
+        self._stream = SegmentStream(rate_hz, nperseg, overlap, window, center_hz, detrend, onesided, noverlap)
+        self._max_columns = check_count(max_columns, "max_columns", 2)
         self._scaling = _check_scaling(scaling)
         self.reset()
 
@@ -745,7 +505,7 @@ class SpectrogramAccumulator:
                 k = self._per_col
                 if self._pending_count or n - i < k:
                     take = min(k - self._pending_count, n - i)
-                    self._pending += rows[i : i + take].sum(axis=0)
+                    self._pending += np.add.reduce(rows[i : i + take], axis=0, dtype=np.float64)
                     self._pending_count += take
                     i += take
                     if self._pending_count == k:
@@ -758,7 +518,7 @@ class SpectrogramAccumulator:
                     full = min((n - i) // k, room)
                     if full:
                         chunk = rows[i : i + full * k].reshape(full, k, -1)
-                        self._cols[self._ncols : self._ncols + full] = chunk.mean(axis=1)
+                        self._cols[self._ncols : self._ncols + full] = chunk.mean(axis=1, dtype=np.float64)
                         self._ncols += full
                         i += full * k
                 if self._ncols == self._max_columns:
@@ -786,8 +546,8 @@ class SpectrogramAccumulator:
             assert self._pending is not None  # allocated together with the columns
             raw = np.vstack([raw, self._pending[None, :] / self._pending_count])
             counts.append(self._pending_count)
-        freqs, power = self._stream._finish(raw, self._scaling)
-        step, nps, fs = self._stream._step, self.nperseg, self.rate_hz
+        freqs, power = self._stream.finish(raw, self._scaling)
+        step, nps, fs = self._stream.step, self.nperseg, self.rate_hz
         first = np.concatenate([[0], np.cumsum(counts)[:-1]])  # first segment index of each column
         last = first + np.asarray(counts) - 1
         times = ((first * step) + (last * step + nps)) / 2.0 / fs
