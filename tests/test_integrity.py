@@ -12,6 +12,7 @@ import hashlib
 import io
 import json
 import tarfile
+import threading
 from pathlib import Path
 
 import numpy as np
@@ -217,16 +218,37 @@ def test_library_verify_option(tmp_path):
         open_capture(bad).read()
 
 
-def test_checked_in_the_same_pass(tmp_path, monkeypatch):
-    """No second read of the file: with no header or trailing bytes the check opens nothing of its own."""
+def test_checked_on_a_thread_of_its_own_that_a_stopped_pass_stops(tmp_path, monkeypatch):
+    """The check hashes on its own thread beside the pass; a pass abandoned early leaves no thread behind."""
     meta = recording(tmp_path, "good")
-    opened = []
-    monkeypatch.setattr(iqsift.captures.integrity, "open", lambda *a, **k: opened.append(a) or open(*a, **k),
-                        raising=False)
+    release = threading.Event()
+
+    class HeldSha:  # a SHA-512 that waits until the test lets it go on, so the thread is seen running
+        def __init__(self) -> None:
+            self._sha = hashlib.new("sha512")  # not the patched name
+
+        def update(self, data) -> None:
+            release.wait(10)
+            self._sha.update(data)
+
+        def hexdigest(self) -> str:
+            return self._sha.hexdigest()
+
+    def checking() -> list[threading.Thread]:
+        return [t for t in threading.enumerate() if t.name == "iqsift-checksum"]
+
+    monkeypatch.setattr(iqsift.captures.integrity, "_THREAD_CHUNK_BYTES", 4096)
     with open_capture(meta) as capture:
-        samples = np.concatenate(list(capture.blocks(block_size=4096)))
-    assert opened == [] and samples.shape == (48000,)
-    assert samples.tobytes() == tone_bytes()
+        monkeypatch.setattr(iqsift.captures.integrity.hashlib, "sha512", HeldSha)
+        blocks = capture.blocks(block_size=4096)
+        next(blocks)
+        assert len(checking()) == 1  # hashing beside the pass, not after it
+        release.set()
+        blocks.close()  # the consumer stops early: the check is stopped and joined
+        assert checking() == []
+        monkeypatch.undo()
+        samples = np.concatenate(list(capture.blocks(block_size=4096)))  # a whole pass: checked, then gone
+    assert samples.tobytes() == tone_bytes() and checking() == []
 
 
 # -- capture segments past the end ------------------------------------------------------------------
@@ -260,3 +282,28 @@ def test_segment_past_the_end_with_header_bytes_is_refused(run_cli, tmp_path):
     meta = recording(tmp_path, "hdr", None, raw=b"\0" * 400, captures=segments)
     line = one_error_line(run_cli("info", meta))
     assert "captures[1]" in line and "core:header_bytes 8" in line and "past the end" in line
+
+
+def test_check_started_ahead_is_taken_by_the_whole_pass(tmp_path, monkeypatch):
+    """check_ahead() starts the hash at once; the next whole pass uses it (one hash), a part does not."""
+    good, bad = recording(tmp_path, "good"), recording(tmp_path, "bad", "wrong")
+    started = []
+    original = iqsift.captures.integrity.ChecksumPass.__init__
+
+    def counting(self, recorded):
+        started.append(recorded.data_path.name)
+        original(self, recorded)
+
+    monkeypatch.setattr(iqsift.captures.integrity.ChecksumPass, "__init__", counting)
+    with open_capture(bad) as capture:
+        capture.check_ahead()
+        assert started == ["bad.sigmf-data"]
+        list(capture.blocks(block_size=4096, start=10, count=100))  # a part: not checked, keeps the check
+        with pytest.raises(ChecksumError):
+            list(capture.blocks(block_size=4096))
+        assert started == ["bad.sigmf-data"]  # the whole pass took the check started ahead
+    with open_capture(good) as capture:
+        capture.check_ahead(10, 100)  # a part of the capture is never checked: nothing starts
+        assert started == ["bad.sigmf-data"]
+        capture.check_ahead()
+    assert not any(t.name == "iqsift-checksum" for t in threading.enumerate())  # close() stopped it

@@ -18,7 +18,7 @@ import numpy as np
 
 from ..errors import CaptureError
 from .datatypes import DataType
-from .integrity import ChecksumPass, RecordedChecksum
+from .integrity import RecordedChecksum
 
 __all__ = ["ByteRun", "BinarySource"]
 
@@ -65,8 +65,8 @@ class BinarySource:
                 raise CaptureError(f"{self.path}: cannot open data file: {exc.strerror or exc}") from None
         return self._file
 
-    def read(self, start: int, count: int, checksum: ChecksumPass | None = None) -> np.ndarray:
-        """Return ``count`` complex64 samples from sample ``start``; the bytes read go to ``checksum`` too."""
+    def read(self, start: int, count: int) -> np.ndarray:
+        """Return ``count`` complex64 samples from sample ``start``."""
         parts = []
         position, stop = start, start + count
         for run in self.runs:
@@ -75,13 +75,13 @@ class BinarySource:
                 continue
             first = max(position, run.sample_start)
             last = min(stop, run_stop)
-            parts.append(self._read_run(run, first, last - first, checksum))
+            parts.append(self._read_run(run, first, last - first))
             position = last
         if not parts:
             return np.zeros(0, np.complex64)
         return parts[0] if len(parts) == 1 else np.concatenate(parts)
 
-    def _read_run(self, run: ByteRun, first: int, count: int, checksum: ChecksumPass | None) -> np.ndarray:
+    def _read_run(self, run: ByteRun, first: int, count: int) -> np.ndarray:
         dt = self.datatype
         handle = self._handle()
         offset = run.byte_offset + (first - run.sample_start) * dt.sample_bytes
@@ -102,8 +102,6 @@ class BinarySource:
                 f"{self.path}: expected {count} samples at sample {first}, the file ended after "
                 f"{filled // dt.sample_bytes}; was it truncated?"
             )
-        if checksum is not None:
-            checksum.update(offset, buffer)  # the file's bytes, as read
         return dt.to_complex64(raw)
 
     def close(self) -> None:

@@ -10,7 +10,6 @@ samples with a zero imaginary part and ``is_complex == False``.
 from __future__ import annotations
 
 import dataclasses
-import functools
 import math
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -204,6 +203,7 @@ class Capture:
         self.nominal_sample_rate_hz = self.sample_rate_hz
         self._nominal = (self.segments, self.annotations)
         self.correction: BlockCorrection | None = None
+        self._check_started: ChecksumPass | None = None
 
     def correct_reference(self, ppm: float) -> "Capture":
         """Read the capture as made by a receiver whose reference ran ``ppm`` parts per million fast.
@@ -268,8 +268,29 @@ class Capture:
         self.close()
 
     def close(self) -> None:
-        """Close the underlying file."""
+        """Close the underlying file (and stop a checksum check started ahead that no pass took)."""
+        self.stop_check_ahead()
         self._source.close()
+
+    def check_ahead(self, start: int = 0, count: int | None = None) -> None:
+        """Start checking the recorded checksum now, for the coming pass over ``[start, start + count)``.
+
+        The check of a pass over the whole capture (see :meth:`blocks`) hashes the data file on a
+        thread of its own; started here, right after opening, it runs while the caller designs
+        filters and imports what it needs, instead of from the first block on. The next pass of
+        :meth:`blocks` over the whole capture takes it over; nothing happens when that range is not
+        the whole capture, when :attr:`verify` is off or the capture records no checksum. The
+        check started ahead is stopped by :meth:`close` if no pass took it.
+        """
+        count = self.samples - start if count is None else count
+        if self._check_started is None:
+            self._check_started = self._checksum_pass(start, count, ahead=False)
+
+    def stop_check_ahead(self) -> None:
+        """Stop a check started by :meth:`check_ahead` that no pass has taken over (else nothing)."""
+        if self._check_started is not None:
+            self._check_started.close()
+            self._check_started = None
 
     # -- selection ------------------------------------------------------
     def select(
@@ -406,17 +427,18 @@ class Capture:
     def _checked_blocks(self, block_size: int, start: int, count: int, nonfinite: str,
                         check: bool) -> Iterator[np.ndarray]:
         """The blocks as read, then the checksum check (see :meth:`blocks`)."""
-        read, checksum = self._reader(start, count)
+        checksum = self._checksum_pass(start, count)
         try:
-            yield from self._read_blocks(read, block_size, start, count, nonfinite, check)
+            yield from self._read_blocks(self._source.read, block_size, start, count, nonfinite, check)
             if checksum is not None:
                 checksum.finish()
         finally:
             if checksum is not None:
                 checksum.close()
 
-    def _reader(self, start: int, count: int) -> tuple[Callable[[int, int], np.ndarray], ChecksumPass | None]:
-        """How to read ``count`` samples from ``start``: plainly, or through a checksum pass.
+    def _checksum_pass(self, start: int, count: int, ahead: bool = True) -> ChecksumPass | None:
+        """The check of a pass (the one started by :meth:`check_ahead` when ``ahead``, else a new one
+        started now on its own thread), or None when this pass is not checked.
 
         Only a pass over the whole capture is checked: a part of the data says nothing about
         the checksum of the whole.
@@ -424,9 +446,11 @@ class Capture:
         source = self._source
         if (self.verify and isinstance(source, BinarySource) and source.checksum is not None
                 and start == 0 and count == self.samples):
-            checksum = source.checksum.start()
-            return functools.partial(source.read, checksum=checksum), checksum
-        return source.read, None
+            if ahead and self._check_started is not None:
+                started, self._check_started = self._check_started, None
+                return started
+            return source.checksum.start()
+        return None
 
     def _read_blocks(self, read: Callable[[int, int], np.ndarray], block_size: int, start: int, count: int,
                      nonfinite: str, check: bool) -> Iterator[np.ndarray]:

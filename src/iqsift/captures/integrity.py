@@ -1,18 +1,18 @@
 """Checking a SigMF dataset against the SHA-512 its metadata records (``core:sha512``) while it streams.
 
 The SigMF specification defines ``core:sha512`` as the SHA-512 (FIPS 180-4) of the whole dataset
-file. A :class:`ChecksumPass` hashes the bytes a sequential read of the samples sees, as it reads
-them, plus the few bytes that read skips (``core:header_bytes`` of capture segments,
-``core:trailing_bytes``, a partial last sample), so checking costs no second pass over the file.
+file. A :class:`ChecksumPass` hashes the dataset's bytes (all of them: ``core:header_bytes`` of capture
+segments, ``core:trailing_bytes`` and a partial last sample included) on a thread of its own while
+the samples stream, so the check costs no time after the pass and runs beside the processing.
 """
 
 from __future__ import annotations
 
 import hashlib
 import re
+import threading
 from dataclasses import dataclass
 from pathlib import Path
-from typing import BinaryIO
 
 from ..errors import CaptureError
 
@@ -20,6 +20,7 @@ __all__ = ["ChecksumError", "ChecksumPass", "RecordedChecksum", "sha256_of_file"
 
 _SHA512_HEX = re.compile(r"[0-9a-fA-F]{128}")
 _CHUNK_BYTES = 1 << 20
+_THREAD_CHUNK_BYTES = 1 << 22
 
 
 class ChecksumError(CaptureError):
@@ -65,74 +66,83 @@ class RecordedChecksum:
 
 
 class ChecksumPass:
-    """The SHA-512 of one sequential read of a dataset, checked against the recorded value at the end.
+    """The SHA-512 of a dataset's bytes, computed on a thread of its own while the samples stream.
 
-    The reader hands over each run of bytes it reads with :meth:`update`; bytes it skipped since the
-    previous run are read here (from a file handle of this pass's own) and hashed in order.
+    The thread reads the dataset ``[begin, end)`` through a file handle of its own, in 4 MiB pieces
+    into one reused buffer (bounded memory), and hashes them; :mod:`hashlib` releases the GIL while
+    hashing, so the check runs on a second core beside the reading, decoding and processing of the
+    samples instead of after each block on the reader's path. The second read of the file is served
+    by the page cache (or brings the pages in for the sample reader when it runs ahead). SHA-512 is
+    sequential (FIPS 180-4), so one thread is all one file's check can use.
+
+    Parameters
+    ----------
+    recorded : RecordedChecksum
+        The value to check and the bytes it covers.
     """
 
     def __init__(self, recorded: RecordedChecksum) -> None:
         self.recorded = recorded
-        self.position = recorded.begin
-        self._sha = hashlib.sha512()
-        self._handle: BinaryIO | None = None
-        self.in_order = True
+        self._stop = threading.Event()
+        self._actual: str | None = None
+        self._failure: BaseException | None = None
+        self._thread = threading.Thread(target=self._run, name="iqsift-checksum", daemon=True)
+        self._thread.start()
 
-    def update(self, offset: int, data: memoryview | bytes) -> None:
-        """Hash ``data``, read from byte ``offset`` of the file, after the bytes skipped before it."""
-        if offset < self.position:  # read out of order: this pass cannot vouch for the file
-            self.in_order = False
-        if not self.in_order:
-            return
-        self._hash_file_bytes(offset)
-        self._sha.update(data)
-        self.position = offset + len(data)
+    def _run(self) -> None:
+        rec = self.recorded
+        try:
+            sha = hashlib.sha512()
+            buffer = bytearray(min(_THREAD_CHUNK_BYTES, max(rec.end - rec.begin, 1)))
+            view = memoryview(buffer)
+            position = rec.begin
+            with open(rec.data_path, "rb", buffering=0) as handle:
+                handle.seek(position)
+                while position < rec.end and not self._stop.is_set():
+                    want = min(len(buffer), rec.end - position)
+                    got = handle.readinto(view[:want])
+                    if not got:
+                        raise CaptureError(
+                            f"{rec.data_path}: the file ended at byte {position}, before byte {rec.end}; "
+                            "was it truncated while reading?"
+                        )
+                    sha.update(view[:got])
+                    position += got
+            if position >= rec.end:
+                self._actual = sha.hexdigest()
+        except OSError as exc:
+            self._failure = CaptureError(f"{rec.data_path}: cannot read the data to check it: {exc.strerror or exc}")
+        except BaseException as exc:  # handed to the thread that asks for the verdict
+            self._failure = exc
 
     def finish(self) -> None:
-        """Hash the bytes after the last run and compare with the recorded value.
+        """Wait for the hash and compare it with the recorded value.
 
         Raises
         ------
         ChecksumError
             If the data's SHA-512 differs from the recorded one.
+        CaptureError
+            If the file could not be read to its end.
         """
-        try:
-            if not self.in_order:
-                return
-            self._hash_file_bytes(self.recorded.end)
-            actual = self._sha.hexdigest()
-            expected = str(self.recorded.sha512).lower()
-            if actual != expected:
-                raise ChecksumError(
-                    f"{self.recorded.data_path}: the data does not match its checksum (SHA-512 {actual[:16]}..., "
-                    f"core:sha512 in {self.recorded.where} {expected[:16]}...): the file is damaged or was changed "
-                    "after recording; pass verify=False to read it anyway", parameters=("verify",)
-                )
-        finally:
-            self.close()
+        self._thread.join()
+        if self._failure is not None:
+            raise self._failure
+        actual = self._actual
+        expected = str(self.recorded.sha512).lower()
+        if actual is None:  # stopped by close() before the end: nothing to vouch for
+            return
+        if actual != expected:
+            raise ChecksumError(
+                f"{self.recorded.data_path}: the data does not match its checksum (SHA-512 {actual[:16]}..., "
+                f"core:sha512 in {self.recorded.where} {expected[:16]}...): the file is damaged or was changed "
+                "after recording; pass verify=False to read it anyway", parameters=("verify",)
+            )
 
     def close(self) -> None:
-        """Release the file handle (if skipped bytes were read)."""
-        if self._handle is not None:
-            self._handle.close()
-            self._handle = None
-
-    def _hash_file_bytes(self, stop: int) -> None:
-        """Read and hash the file's bytes from the current position up to ``stop``."""
-        if stop <= self.position:
-            return
-        if self._handle is None:
-            self._handle = open(self.recorded.data_path, "rb")  # noqa: SIM115 - closed by close()
-        self._handle.seek(self.position)
-        while self.position < stop:
-            chunk = self._handle.read(min(_CHUNK_BYTES, stop - self.position))
-            if not chunk:
-                raise CaptureError(
-                    f"{self.recorded.data_path}: the file ended at byte {self.position}, before byte {stop}; "
-                    "was it truncated while reading?"
-                )
-            self._sha.update(chunk)
-            self.position += len(chunk)
+        """Stop the hashing thread (it finishes the piece it is on) and wait for it."""
+        self._stop.set()
+        self._thread.join()
 
 
 def sha256_of_file(path: str | Path) -> str:

@@ -73,29 +73,7 @@ class CaptureStats:
         return dict(self.__dict__)
 
 
-def _peak_power(block: np.ndarray) -> float:
-    """Largest i² + q² of a finite, non-empty block, computed in float64 as the mean power is.
-
-    The candidates are found in float32 (a quarter of the memory traffic): every sample within a
-    relative 1e-5 of the float32 maximum (float32 rounding is below 2^-22 relative), then their exact
-    float64 power is taken, so the value equals ``max(i·i + q·q)`` over the whole block in float64.
-    """
-    if block.dtype != np.complex64:
-        i = block.real.astype(np.float64)
-        q = block.imag.astype(np.float64)
-        return float((i * i + q * q).max())
-    re, im = block.real, block.imag
-    with np.errstate(over="ignore"):  # an overflowing square is +inf: still the candidate
-        p32 = re * re
-        p32 += im * im
-    top = p32.max()
-    if not top > 1e-30:  # float32 squares underflow (or NaN): no shortcut
-        near = block
-    else:
-        near = block[p32 >= top * np.float32(1.0 - 1e-5)]
-    ci = near.real.astype(np.float64)
-    cq = near.imag.astype(np.float64)
-    return float((ci * ci + cq * cq).max())
+_PIECE = 1 << 15  # samples per in-cache piece: four float64 buffers of 256 KiB each
 
 
 class StatsAccumulator:
@@ -119,32 +97,58 @@ class StatsAccumulator:
         self.peak = 0.0
         self.s_i = self.s_q = 0.0
         self.s_ii = self.s_qq = self.s_iq = 0.0
+        self._i = np.empty(_PIECE, np.float64)
+        self._q = np.empty(_PIECE, np.float64)
+        self._p = np.empty(_PIECE, np.float64)
+        self._qq = np.empty(_PIECE, np.float64)
 
     def update(self, block: np.ndarray) -> None:
-        """Add a block of complex64 samples (full scale = magnitude 1)."""
+        """Add a block of complex64 samples (full scale = magnitude 1).
+
+        The block is measured in pieces of 32768 samples converted to float64 in reused buffers
+        that stay in the processor's cache (no block-sized temporaries); every sum is a float64
+        sum of exact float64 values, so the result depends on the block cut only in the last digits
+        of the sums. A piece whose float64 sum is finite holds only finite samples (float32 values
+        cannot overflow a float64 sum of 32768 terms), so the finiteness check costs nothing extra.
+        """
         block = np.asarray(block)
-        finite = np.isfinite(block)
-        if not finite.all():
-            self.nonfinite += int(block.shape[0] - np.count_nonzero(finite))
-            block = block[finite]
-        if block.shape[0] == 0:
-            return
-        block_peak = _peak_power(block)
-        i = block.real.astype(np.float64)
-        q = block.imag.astype(np.float64)
-        self.n += block.shape[0]
-        self.peak = max(self.peak, block_peak)
-        self.s_i += float(i.sum())
-        self.s_q += float(q.sum())
+        if block.dtype != np.complex64:
+            block = block.astype(np.complex128, copy=False)
+        for first in range(0, block.shape[0], _PIECE):
+            self._update_piece(block[first:first + _PIECE])
+
+    def _update_piece(self, piece: np.ndarray) -> None:
+        n = piece.shape[0]
+        i, q, p = self._i[:n], self._q[:n], self._p[:n]
+        np.copyto(i, piece.real)
+        np.copyto(q, piece.imag)
+        s_i, s_q = float(i.sum()), float(q.sum())
+        if not (math.isfinite(s_i) and math.isfinite(s_q)):
+            finite = np.isfinite(piece)
+            if not finite.all():
+                self.nonfinite += int(n - np.count_nonzero(finite))
+                kept = piece[finite]
+                if kept.shape[0]:
+                    self._update_piece(kept)
+                return
         # einsum's own summation loop, not BLAS: a multithreaded BLAS dot product fights the read-ahead
-        # thread for the cores (info ran 1.6x slower on 2 cores) and its last digits depend on the
-        # machine's thread count; this sum is the same on every machine
-        self.s_ii += float(np.einsum("i,i->", i, i))
-        self.s_qq += float(np.einsum("i,i->", q, q))
-        self.s_iq += float(np.einsum("i,i->", i, q))
+        # thread for the cores and its last digits depend on the machine's thread count
+        s_ii = float(np.einsum("i,i->", i, i))
+        s_qq = float(np.einsum("i,i->", q, q))
+        s_iq = float(np.einsum("i,i->", i, q))
+        np.multiply(i, i, out=p)
+        p += np.multiply(q, q, out=self._qq[:n])
+        piece_peak = float(p.max())
+        self.n += n
+        self.peak = max(self.peak, piece_peak)
+        self.s_i += s_i
+        self.s_q += s_q
+        self.s_ii += s_ii
+        self.s_qq += s_qq
+        self.s_iq += s_iq
         high, low = self.clip_high, -1.0
-        # |i|, |q| <= sqrt(peak power): a block well below both limits cannot hold a clipped component
-        if block_peak >= 0.99 * min(high, 1.0) ** 2:
+        # |i|, |q| <= sqrt(peak power): a piece well below both limits cannot hold a clipped component
+        if piece_peak >= 0.99 * min(high, 1.0) ** 2:
             hit = (i >= high) | (i <= low)
             if self.is_complex:
                 hit |= (q >= high) | (q <= low)

@@ -7,12 +7,14 @@ documented in ``docs/iqsift.sigmf-ext.md``.
 
 from __future__ import annotations
 
-from typing import Any, Mapping, Sequence
+from typing import TYPE_CHECKING, Any, Mapping, Sequence
 
 import numpy as np
 
 from ..captures import Capture, SampleRange, recording_edges
-from ..survey import SurveyResult
+
+if TYPE_CHECKING:  # survey pulls in scipy.ndimage: not on the way of demod and extract
+    from ..survey import SurveyResult
 
 __all__ = ["emission_annotations", "activity_annotations"]
 

@@ -90,6 +90,7 @@ def opened(
                 with_iq_correction(capture)
             yield capture
         finally:
+            capture.stop_check_ahead()  # the job's check, if no pass of the job took it
             capture.verify, capture.correction = own_setting, own_correction
             if capture.reference_ppm != own_ppm:  # a job may correct it further (survey's estimate)
                 capture.correct_reference(own_ppm)

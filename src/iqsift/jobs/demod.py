@@ -194,6 +194,7 @@ def demod_file(
     with opened(capture, format=format, rate=rate, center=center, strict=strict,
                 verify=verify, ppm=ppm) as cap:
         selection = cap.select(start, duration)
+        cap.check_ahead(selection.start, selection.count)  # hash the data while the job prepares
         receiver = Receiver.for_capture(cap, channel, selection, engine=engine, agc=agc, spectra=bool(spectra) or html)
         if annotate or html:  # activity (and the page's table) need the measurements
             receiver.analyze(time_offset_s=selection.start / cap.sample_rate_hz)  # activity in capture time

@@ -185,6 +185,7 @@ def extract_file(
     with opened(capture, format=format, rate=rate, center=center, strict=strict,
                 verify=verify, ppm=ppm if ppm is not None else plan_obj.ppm) as cap:
         selection = cap.select(start, duration)
+        cap.check_ahead(selection.start, selection.count)  # hash the data while the job prepares
         extractor = Extractor.from_plan(cap, plan_obj, selection=selection, spectra=spectra or html)
         parent = folder.parent if str(folder.parent) else Path(".")
         if not parent.is_dir():

@@ -59,6 +59,7 @@ def info_file(
     """
     with opened(capture, format=format, rate=rate, center=center, strict=strict, verify=verify,
                 ppm=ppm, iq_correct=iq_correct) as cap:
+        cap.check_ahead()
         acc = StatsAccumulator(cap.is_complex, cap.clip_high)
         for block in counted(cap.blocks(nonfinite="keep"), cap.samples, progress):
             acc.update(block)

@@ -133,6 +133,7 @@ def measure_file(
     with opened(capture, format=format, rate=rate, center=center, strict=strict,
                 verify=verify, ppm=ppm, iq_correct=iq_correct) as cap:
         selection = cap.select(start, duration)
+        cap.check_ahead(selection.start, selection.count)  # hash the data while the job prepares
         receiver = Receiver.for_capture(cap, channel, selection, agc=False).analyze(
             tone_hz=tone_hz, weighting=weighting, x_db=x_db, activity={"threshold_db": threshold_db},
             time_offset_s=selection.start / cap.sample_rate_hz)  # activity in capture time

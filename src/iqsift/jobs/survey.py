@@ -139,6 +139,7 @@ def survey_file(
                     verify=verify, ppm=ppm, iq_correct=iq_correct) as cap:
             annotate_tmp = outputs.reserve(check_annotation_path(cap, annotate)) if annotate else None
             selection = cap.select(start, duration)
+            cap.check_ahead(selection.start, selection.count)  # hash the data while the job prepares
             if raster_obj is not None and cap.center_for(selection) is None:
                 raise ParameterError(
                     f"raster: {cap.path} has no centre frequency, so frequencies are offsets; give one with center",
