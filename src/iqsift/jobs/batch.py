@@ -30,7 +30,7 @@ from ..captures.integrity import sha256_of_file
 from ..errors import IqsiftError, OutputExistsError, ParameterError
 from ..jsonable import to_jsonable
 from ..plan import load_plan
-from .batch_capture import STAGING_MARK, CaptureTask, one_line, run_capture, utc_now
+from .batch_capture import STAGING_MARK, CaptureTask, annotation_name, one_line, run_capture, utc_now
 from .batch_inputs import capture_stem, expand_captures, read_manifest
 from .batch_records import (
     ACTIVITY_CSV,
@@ -144,10 +144,17 @@ def _resumable(task: CaptureTask, line: Mapping[str, Any] | None, folder: Path) 
         if not path.is_file() or sha256_of_file(path) != output["sha256"]:
             return None
     report_path = folder / task.stem / "report.json"
-    if not any(o["path"] == str(Path(task.stem) / "report.json") for o in line.get("outputs", ())):
+    listed = {o["path"] for o in line.get("outputs", ())}
+    if not all(str(Path(task.stem) / name) in listed for name in _expected_outputs(task)):
         return None
     report = json.loads(report_path.read_text(encoding="utf-8"))
     return CaptureOutcome.from_line(line, activity_segments(report, task.stem))
+
+
+def _expected_outputs(task: CaptureTask) -> list[str]:
+    """Files a capture's folder must list for its options (those named the same whatever the plan)."""
+    return ["report.json", *(["report.html"] if task.options.get("html") else []),
+            *([annotation_name(task.stem)] if task.options.get("annotate") else [])]
 
 
 def _check_outputs(folder: Path, tasks: Sequence[CaptureTask], *, force: bool, resume: bool) -> None:
@@ -286,6 +293,9 @@ def batch_files(
     strict: bool = False,
     ppm: float | None = None,
     split_seconds: float | None = None,
+    iq_correct: bool = False,
+    annotate: bool = False,
+    html: bool = False,
 ) -> BatchResult:
     """Extract every capture with its plan, each into ``out_dir/<stem>/``, on Dask's distributed scheduler.
 
@@ -314,8 +324,13 @@ def batch_files(
     memory_limit : str or float or None
         Memory limit of each local worker process (Dask's ``memory_limit``: "auto" shares the
         machine's memory among them, "2GiB", bytes, or None for none).
-    spectra, plot_format, baseband, allow_nonfinite, format, rate, center, strict, ppm
-        As for :func:`extract_file`, for every capture.
+    spectra, plot_format, baseband, allow_nonfinite, format, rate, center, strict, ppm, iq_correct, html
+        As for :func:`extract_file`, for every capture (``html``: ``report.html`` and ``report_files/`` in
+        each capture's folder; ``iq_correct``: each capture's own first pass estimates its correction).
+    annotate : bool
+        Also write ``<stem>.annotated.sigmf-meta`` in each capture's folder: the recording's SigMF metadata
+        with one annotation per activity segment, as ``extract --annotate`` writes it, but metadata-only
+        (``core:metadata_only``; SigMF's ``core:dataset`` may only name a file beside the metadata).
     force : bool
         Replace existing capture folders, ``batch.jsonl`` and ``activity.csv``.
     resume : bool
@@ -325,8 +340,8 @@ def batch_files(
         Called with ``(1, total)`` as each capture (with ``split_seconds``: each piece) finishes.
     split_seconds : float, optional
         Cut each capture into time pieces of about this length (s, rounded to the filter bank's hop) run
-        in parallel, with outputs equal to a whole pass's (:mod:`iqsift.jobs.split`); not with spectra
-        or baseband.
+        in parallel, with outputs equal to a whole pass's (:mod:`iqsift.jobs.split`); with annotate, not
+        with spectra, baseband, html or iq_correct.
 
     Raises
     ------
@@ -350,6 +365,9 @@ def batch_files(
                "strict": strict}
     if ppm is not None:  # only when given: earlier batch logs without it still resume
         options["ppm"] = ppm
+    for name, wanted in (("iq_correct", iq_correct), ("annotate", annotate), ("html", html)):
+        if wanted:  # likewise only when asked for
+            options[name] = True
     if split_seconds is not None:
         check_split(split_seconds, options)
     tasks = _tasks(captures, plan, folder, options, force)

@@ -27,7 +27,7 @@ from ..jsonable import dumps
 from .batch_records import CaptureOutcome, OutputFile, activity_segments
 from .extract import ChannelResult, ExtractResult, extract_file
 
-__all__ = ["STAGING_MARK", "CaptureTask", "one_line", "run_capture", "utc_now"]
+__all__ = ["STAGING_MARK", "CaptureTask", "annotation_name", "one_line", "run_capture", "utc_now"]
 
 STAGING_MARK = ".batch-partial-"
 """Hidden staging folders are ``.<stem>.batch-partial-<random>`` in the batch folder."""
@@ -98,7 +98,53 @@ def _moved(result: ExtractResult, old: Path, new: Path) -> ExtractResult:
         return value
 
     channels = tuple(ChannelResult(c.report, {k: move(v) for k, v in c.outputs.items()}) for c in result.channels)
-    return replace(result, folder=str(new), channels=channels)
+    return replace(result, folder=str(new), channels=channels, html=move(result.html),
+                   annotations=move(result.annotations))
+
+
+def annotation_name(stem: str) -> str:
+    """The annotated metadata's name in a capture's folder: ``<stem>.annotated.sigmf-meta``."""
+    return f"{stem}.annotated.sigmf-meta"
+
+
+def check_annotatable(task: "CaptureTask") -> None:
+    """Refuse, before the extraction, a capture whose recording annotations cannot describe (WAV, FLAC,
+    ``.sigmf`` archives: their data are no SigMF dataset file)."""
+    from ..captures import check_annotation_path
+    from .common import opened
+
+    get = task.options.get
+    with opened(task.capture, format=get("format"), rate=get("rate"), center=get("center"), strict=bool(get("strict")),
+                verify=False) as cap:
+        check_annotation_path(cap, cap.files[-1].with_name(annotation_name(task.stem)) if cap.files
+                              else Path(annotation_name(task.stem)))
+
+
+def write_annotations(task: "CaptureTask", result: ExtractResult, staging: Path, final: Path) -> None:
+    """``<stem>.annotated.sigmf-meta`` in the capture's folder: the recording's SigMF metadata with one
+    annotation per activity segment, as ``extract --annotate`` writes it, but metadata-only.
+
+    SigMF's ``core:dataset`` may name only a file beside the metadata (SigMF 1.2, "Global Object"), so
+    metadata kept away from the data file states ``core:metadata_only`` instead; the annotations and
+    every other field are those ``extract --annotate`` writes beside the data.
+    """
+    from ..captures import annotated_metadata
+    from .annotations import activity_annotations
+    from .common import opened
+
+    get = task.options.get
+    with opened(task.capture, format=get("format"), rate=get("rate"), center=get("center"), strict=bool(get("strict")),
+                verify=False, ppm=result.capture.reference_ppm) as cap:
+        reports = [c.report.to_dict() for c in result.channels]
+        notes = [a for r in reports for a in activity_annotations(cap, r["channel"], r.get("activity") or [])]
+        doc = annotated_metadata(cap, cap.files[-1].with_name(annotation_name(task.stem)), notes)
+    doc["global"].pop("core:dataset", None)
+    doc["global"]["core:metadata_only"] = True
+    path = staging / annotation_name(task.stem)
+    if path.exists():
+        raise OutputExistsError(f"{final / path.name}: a channel's output has the annotations' name; rename the "
+                                "channel", parameters=("annotate",))
+    path.write_text(dumps(doc), encoding="utf-8")
 
 
 def _commit_folder(staging: Path, final: Path, force: bool) -> None:
@@ -133,8 +179,14 @@ def run_capture(task: CaptureTask, produce: Callable[[Path], ExtractResult] | No
     try:
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always")
-            made = (extract_file(task.capture, task.plan, staging, force=False, **task.options) if produce is None
+            extract_options = {k: v for k, v in task.options.items() if k != "annotate"}
+            if task.options.get("annotate"):
+                check_annotatable(task)
+            made = (extract_file(task.capture, task.plan, staging, force=False, **extract_options) if produce is None
                     else produce(staging))
+            if task.options.get("annotate"):
+                write_annotations(task, made, staging, final)
+                made = replace(made, annotations=str(staging / annotation_name(task.stem)))
             result = _moved(made, staging, final)
         (staging / "report.json").write_text(dumps(result.to_dict()), encoding="utf-8")
         report = result.to_dict()
