@@ -15,6 +15,8 @@ from .options import (
     CenterOption,
     ForceOption,
     FormatOption,
+    HtmlOption,
+    IqCorrectOption,
     JsonOption,
     NonfiniteOption,
     OptStr,
@@ -63,6 +65,11 @@ def batch_command(
     center: OptStr = CenterOption,
     strict: bool = StrictOption,
     ppm: Optional[float] = PpmOption,
+    iq_correct: bool = IqCorrectOption,
+    annotate: bool = typer.Option(
+        False, "--annotate", help="Also write <capture stem>.annotated.sigmf-meta in each capture's folder: its "
+                                  "SigMF metadata (metadata-only) with one annotation per activity segment."),
+    html: bool = HtmlOption,
 ) -> None:
     """Extract every capture with its plan on a Dask cluster; exit status 1 if some captures failed."""
     from ..jobs.batch import batch_files, expand_captures, read_manifest
@@ -77,6 +84,7 @@ def batch_command(
                 spectra=spectra, plot_format=plot_format, baseband=baseband, allow_nonfinite=allow_nonfinite,
                 force=force, resume=resume, progress=progress, format=format, rate=rate, center=center,
                 strict=strict, ppm=ppm, split_seconds=split_seconds,
+                iq_correct=iq_correct, annotate=annotate, html=html,
             )
     except IqsiftError as exc:
         exc.args = (_in_batch_words(str(exc), exc.parameters),)

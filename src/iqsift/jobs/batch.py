@@ -1,45 +1,50 @@
 """The ``batch`` job: many captures, each extracted exactly as ``iqsift extract`` would, on Dask's scheduler.
 
-Each capture is one task: :func:`~iqsift.jobs.extract_file` into a hidden staging folder beside its
-final place, then one rename of the whole folder, so ``out_dir/<stem>/`` is either complete or absent
-(a task that fails, or a worker killed halfway, leaves only a staging folder, removed when the batch
-ends). Tasks run on Dask's distributed scheduler: a local cluster of worker processes by default, or a
+Each capture is one task (:mod:`iqsift.jobs.batch_capture`): :func:`~iqsift.jobs.extract_file` into a
+hidden staging folder beside its final place, then one rename of the whole folder, so ``out_dir/<stem>/``
+is either complete or absent (a task that fails, or a worker killed halfway, leaves only a staging
+folder, removed when the batch ends). Tasks run on Dask's distributed scheduler: a local cluster of worker processes by default, or a
 running cluster given by address or scheduler file, whose workers must see the captures and the output
 folder under the same paths (shared storage). Dask and distributed are imported only when a batch
 runs, never when iqsift is imported.
 
 The batch folder also gets ``batch.jsonl`` (one line per capture: status, error, outputs with their
 SHA-256, timings, versions) and ``activity.csv`` (every channel's activity across captures, with
-absolute UTC times where a capture states ``core:datetime``), both written atomically.
+absolute UTC times where a capture states ``core:datetime``), both written atomically (:mod:`iqsift.jobs.batch_records`).
 """
 
 from __future__ import annotations
 
 import contextlib
-import csv
 import json
 import os
-import platform
-import re
 import shutil
-import sys
 import time
 import uuid
-import warnings
-from dataclasses import dataclass, replace
-from datetime import datetime, timedelta, timezone
+from dataclasses import replace
 from pathlib import Path
-from typing import TYPE_CHECKING, Any, Callable, Iterable, Iterator, Literal, Mapping, Sequence, Union
+from typing import TYPE_CHECKING, Any, Iterator, Mapping, Sequence, Union
 
-from .. import __version__
 from ..captures.atomic import write_atomically
 from ..captures.integrity import sha256_of_file
 from ..errors import IqsiftError, OutputExistsError, ParameterError
-from ..jsonable import dumps, to_jsonable
+from ..jsonable import to_jsonable
 from ..plan import load_plan
-from .common import Progress, check_plot_format, stamped
-from .extract import ChannelResult, ExtractResult, extract_file
+from .batch_capture import STAGING_MARK, CaptureTask, annotation_name, one_line, run_capture, utc_now
 from .batch_inputs import capture_stem, expand_captures, read_manifest
+from .batch_records import (
+    ACTIVITY_CSV,
+    BATCH_LOG,
+    ActivitySegment,
+    BatchResult,
+    CaptureOutcome,
+    OutputFile,
+    activity_csv_writer,
+    activity_segments,
+    parse_utc,
+    utc_at,
+)
+from .common import Progress, check_plot_format
 from .split import check_split, submit_capture
 
 if TYPE_CHECKING:
@@ -54,357 +59,16 @@ __all__ = [
     "batch_files",
     "capture_stem",
     "expand_captures",
+    "parse_utc",
     "read_manifest",
+    "utc_at",
 ]
 
-BATCH_LOG = "batch.jsonl"
-ACTIVITY_CSV = "activity.csv"
-STAGING_MARK = ".batch-partial-"
-"""Hidden staging folders are ``.<stem>.batch-partial-<random>`` in the batch folder."""
 TASK_RETRIES = 2
 """Dask re-runs a task whose code raised an unexpected error (storage hiccup, memory) this many times;
 a worker that dies mid-task is replaced and its task rescheduled by the scheduler itself."""
-ACTIVITY_COLUMNS = ("start_utc", "end_utc", "capture", "channel", "frequency_hz", "start_s", "end_s",
-                    "duration_s", "level_dbfs")
-
 CaptureItem = Union[str, "os.PathLike[str]", tuple[Union[str, "os.PathLike[str]"], Union[str, "os.PathLike[str]", None]]]
 """A capture path, or ``(capture, plan)`` for a capture with its own plan (a manifest line)."""
-
-
-# -- typed results --------------------------------------------------------------------------------
-@dataclass(frozen=True)
-class OutputFile:
-    """One file a capture's task wrote: ``path`` relative to the batch folder, and its SHA-256 (hex)."""
-
-    path: str
-    sha256: str
-
-    def to_dict(self) -> dict[str, Any]:
-        return {"path": self.path, "sha256": self.sha256}
-
-
-@dataclass(frozen=True)
-class ActivitySegment:
-    """One stretch of activity of one channel: ``capture`` (the capture's stem), ``channel`` (its plan
-    name), ``frequency_hz`` (nominal carrier, Hz; None without a centre frequency), ``start_s``/``end_s``
-    (from the capture's start, s), ``level_dbfs``, and ``start_utc``/``end_utc`` (RFC 3339, UTC, to the
-    microsecond; None unless the capture segment states ``core:datetime``)."""
-
-    capture: str
-    channel: str
-    frequency_hz: float | None
-    start_s: float
-    end_s: float
-    level_dbfs: float | None
-    start_utc: str | None
-    end_utc: str | None
-
-    def to_dict(self) -> dict[str, Any]:
-        return {"start_utc": self.start_utc, "end_utc": self.end_utc, "capture": self.capture,
-                "channel": self.channel, "frequency_hz": self.frequency_hz, "start_s": self.start_s,
-                "end_s": self.end_s, "duration_s": self.end_s - self.start_s, "level_dbfs": self.level_dbfs}
-
-    def sort_key(self) -> tuple[Any, ...]:
-        """UTC first (fixed-width strings sort in time order), then capture time."""
-        return (self.start_utc is None, self.start_utc or "", self.capture, self.start_s, self.channel)
-
-
-@dataclass(frozen=True)
-class CaptureOutcome:
-    """What became of one capture of a batch; :meth:`to_dict` is its ``batch.jsonl`` line.
-
-    ``capture`` and ``plan`` are absolute paths; ``stem`` names the capture's folder; ``status`` is
-    ``"ok"`` or ``"failed"`` with ``error`` (one line) when failed; ``outputs`` lists every file of the
-    folder with its SHA-256; ``activity`` (for ``activity.csv``, not in the line) the channels' activity;
-    ``warnings`` what the extraction warned of; ``options`` and ``plan_sha256`` how it was made (a
-    resumed capture must match them); ``timings`` ``started_utc``, ``finished_utc``, ``elapsed_s`` (the
-    task) and ``processing_s`` (streaming); ``worker`` the Dask worker's address, ``versions`` its
-    iqsift, numpy, scipy and Python and ``worker_peak_rss_mb`` its memory high-water mark after the
-    task (MB); ``resumed`` whether it was taken over from an earlier run.
-    """
-
-    capture: str
-    stem: str
-    plan: str
-    status: Literal["ok", "failed"]
-    error: str | None
-    outputs: tuple[OutputFile, ...]
-    channels: int
-    activity: tuple[ActivitySegment, ...]
-    warnings: tuple[str, ...]
-    options: Mapping[str, Any]
-    plan_sha256: str | None
-    timings: Mapping[str, Any]
-    worker: str | None
-    versions: Mapping[str, str]
-    resumed: bool = False
-    worker_peak_rss_mb: float | None = None
-    split: Mapping[str, Any] | None = None
-
-    def to_dict(self) -> dict[str, Any]:
-        """The capture's ``batch.jsonl`` line."""
-        line: dict[str, Any] = {"capture": self.capture, "stem": self.stem, "status": self.status}
-        if self.error is not None:
-            line["error"] = self.error
-        line.update({
-            "plan": self.plan, "plan_sha256": self.plan_sha256,
-            "folder": self.stem if self.status == "ok" else None,
-            "outputs": [o.to_dict() for o in self.outputs], "channels": self.channels,
-            "activity_segments": len(self.activity), "warnings": list(self.warnings),
-            "options": dict(self.options), "timings": dict(self.timings), "worker": self.worker,
-            "worker_peak_rss_mb": self.worker_peak_rss_mb, "versions": dict(self.versions), "resumed": self.resumed,
-            "split": None if self.split is None else dict(self.split),
-        })
-        return to_jsonable(line)
-
-    @classmethod
-    def from_line(cls, line: Mapping[str, Any], activity: tuple[ActivitySegment, ...]) -> "CaptureOutcome":
-        """An earlier run's line taken over by a resumed batch."""
-        return cls(
-            capture=line["capture"], stem=line["stem"], plan=line["plan"], status=line["status"],
-            error=line.get("error"), outputs=tuple(OutputFile(o["path"], o["sha256"]) for o in line["outputs"]),
-            channels=line["channels"], activity=activity, warnings=tuple(line.get("warnings", ())),
-            options=line["options"], plan_sha256=line.get("plan_sha256"), timings=line.get("timings", {}),
-            worker=line.get("worker"), versions=line.get("versions", {}), resumed=True,
-            worker_peak_rss_mb=line.get("worker_peak_rss_mb"), split=line.get("split"),
-        )
-
-
-@dataclass(frozen=True)
-class BatchResult:
-    """A finished batch: its ``folder`` (absolute), the ``cluster`` it ran on (``kind``: local, address,
-    scheduler_file, client or none; ``address``; ``workers``), the ``captures`` in the order given, every
-    channel's ``activity`` sorted by time (``activity.csv``), and ``elapsed_s`` (s)."""
-
-    folder: str
-    cluster: Mapping[str, Any]
-    captures: tuple[CaptureOutcome, ...]
-    activity: tuple[ActivitySegment, ...]
-    elapsed_s: float
-
-    schema = "batch-v1"
-
-    @property
-    def failed(self) -> tuple[CaptureOutcome, ...]:
-        return tuple(c for c in self.captures if c.status == "failed")
-
-    @property
-    def batch_log(self) -> str:
-        return str(Path(self.folder) / BATCH_LOG)
-
-    @property
-    def activity_csv(self) -> str:
-        return str(Path(self.folder) / ACTIVITY_CSV)
-
-    def to_dict(self) -> dict[str, Any]:
-        """The JSON ``iqsift batch --json`` prints."""
-        return stamped(self.schema, {
-            "folder": self.folder,
-            "cluster": dict(self.cluster),
-            "counts": {"captures": len(self.captures), "ok": len(self.captures) - len(self.failed),
-                       "failed": len(self.failed), "resumed": sum(c.resumed for c in self.captures)},
-            "captures": [c.to_dict() for c in self.captures],
-            "activity_segments": len(self.activity),
-            "outputs": {"batch_log": self.batch_log, "activity_csv": self.activity_csv},
-            "elapsed_s": self.elapsed_s,
-        })
-
-
-# -- activity in absolute time --------------------------------------------------------------------
-_RFC3339 = re.compile(r"^(\d{4}-\d{2}-\d{2})[Tt ](\d{2}:\d{2}:\d{2})(?:\.(\d+))?([Zz]|[+-]\d{2}:\d{2})$")
-
-
-def parse_utc(text: str | None) -> datetime | None:
-    """An RFC 3339 time (SigMF ``core:datetime``) as an aware UTC datetime (to the microsecond); None
-    when absent or unreadable (fractions beyond microseconds are cut: Python's datetime holds no more)."""
-    match = _RFC3339.match(text or "")
-    if match is None:
-        return None
-    date, clock, fraction, zone = match.groups()
-    try:
-        stamp = datetime.strptime(f"{date}T{clock}", "%Y-%m-%dT%H:%M:%S")
-    except ValueError:
-        return None
-    stamp = stamp.replace(microsecond=int((fraction or "0")[:6].ljust(6, "0")))
-    if zone in ("Z", "z"):
-        return stamp.replace(tzinfo=timezone.utc)
-    sign = 1 if zone[0] == "+" else -1
-    offset = timedelta(hours=int(zone[1:3]), minutes=int(zone[4:6]))
-    return (stamp - sign * offset).replace(tzinfo=timezone.utc)
-
-
-def utc_at(segments: Sequence[Mapping[str, Any]], rate_hz: float, time_s: float) -> str | None:
-    """The UTC time of capture time ``time_s``, from the capture segment holding it (None without a
-    ``datetime`` there): the segment's datetime plus the samples since its start over the rate."""
-    sample = time_s * rate_hz
-    holding = [s for s in segments if s["sample_start"] <= sample]
-    start = parse_utc(holding[-1].get("datetime")) if holding else None
-    if start is None:
-        return None
-    when = start + timedelta(seconds=(sample - holding[-1]["sample_start"]) / rate_hz)
-    return when.strftime("%Y-%m-%dT%H:%M:%S.%fZ")
-
-
-def activity_segments(report: Mapping[str, Any], capture: str) -> tuple[ActivitySegment, ...]:
-    """Every channel's activity in an extract report (``report.json``), with UTC times where known.
-
-    Parameters
-    ----------
-    report : Mapping
-        An ``extract-v1`` document.
-    capture : str
-        The name to file the segments under (the capture's stem).
-    """
-    rate_hz = report["capture"]["sample_rate_hz"]
-    segments = sorted(report["capture"]["segments"], key=lambda s: s["sample_start"])
-    found = []
-    for channel in report["channels"]:
-        for seg in channel.get("activity") or ():
-            found.append(ActivitySegment(
-                capture, channel["channel"]["name"], channel["channel"].get("frequency_hz"), seg["start_s"],
-                seg["end_s"], seg.get("level_dbfs"), utc_at(segments, rate_hz, seg["start_s"]),
-                utc_at(segments, rate_hz, seg["end_s"])))
-    return tuple(found)
-
-
-def _activity_csv(segments: Sequence[ActivitySegment]) -> Any:
-    """A writer of ``activity.csv`` for :func:`write_atomically`."""
-    def number(value: float | None, digits: int) -> str:
-        return "" if value is None else f"{value:.{digits}f}"
-
-    def write(handle: Any) -> None:
-        out = csv.writer(handle, lineterminator="\n")
-        out.writerow(ACTIVITY_COLUMNS)
-        for s in segments:
-            out.writerow([s.start_utc or "", s.end_utc or "", s.capture, s.channel, number(s.frequency_hz, 3),
-                          number(s.start_s, 6), number(s.end_s, 6), number(s.end_s - s.start_s, 6),
-                          number(s.level_dbfs, 2)])
-    return write
-
-
-# -- one capture: the task a worker runs ----------------------------------------------------------
-@dataclass(frozen=True)
-class CaptureTask:
-    """Everything a worker needs for one capture (plain data: it travels to the worker pickled)."""
-
-    capture: str
-    stem: str
-    plan: str
-    plan_sha256: str
-    folder: str
-    options: Mapping[str, Any]
-    force: bool
-
-    def failed(self, error: str, timings: Mapping[str, Any], worker: str | None = None,
-               versions: Mapping[str, str] | None = None) -> CaptureOutcome:
-        return CaptureOutcome(self.capture, self.stem, self.plan, "failed", error, (), 0, (), (), self.options,
-                              self.plan_sha256, timings, worker, versions or {})
-
-
-def _utc_now() -> str:
-    return datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%S.%fZ")
-
-
-def _one_line(exc: BaseException) -> str:
-    """An error as one line: iqsift's own in its words, anything else headed by its type."""
-    text = str(exc) if isinstance(exc, IqsiftError) else f"{type(exc).__name__}: {exc}"
-    return " ".join(text.split())
-
-
-def _versions() -> dict[str, str]:
-    import numpy
-    import scipy
-
-    return {"iqsift": __version__, "numpy": numpy.__version__, "scipy": scipy.__version__,
-            "python": platform.python_version()}
-
-
-def _worker_address() -> str | None:
-    try:
-        from distributed import get_worker
-
-        return str(get_worker().address)
-    except (ImportError, ValueError):  # run outside a Dask worker
-        return None
-
-
-def _peak_rss_mb() -> float | None:
-    """This process's peak resident memory so far (MB): a worker's high-water mark, for sizing workers."""
-    try:
-        import resource
-    except ImportError:  # not on Windows
-        return None
-    kib_or_bytes = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss  # KiB on Linux, bytes on macOS
-    return float(kib_or_bytes) * (1.0 if sys.platform == "darwin" else 1024.0) / 1e6
-
-
-def _moved(result: ExtractResult, old: Path, new: Path) -> ExtractResult:
-    """``result`` with the paths it names moved from folder ``old`` to ``new``."""
-    def move(value: Any) -> Any:
-        if isinstance(value, str) and (value == str(old) or value.startswith(str(old) + os.sep)):
-            return str(new) + value[len(str(old)):]
-        if isinstance(value, list):
-            return [move(v) for v in value]
-        return value
-
-    channels = tuple(ChannelResult(c.report, {k: move(v) for k, v in c.outputs.items()}) for c in result.channels)
-    return replace(result, folder=str(new), channels=channels)
-
-
-def _commit_folder(staging: Path, final: Path, force: bool) -> None:
-    """Rename the finished staging folder into place (replacing an old one only with ``force``)."""
-    if not (final.exists() or final.is_symlink()):
-        os.rename(staging, final)
-        return
-    if not force:
-        raise OutputExistsError(f"{final}: appeared while the batch ran; pass force to replace it",
-                                parameters=("force",))
-    old = final.with_name(f".{final.name}{STAGING_MARK}{uuid.uuid4().hex[:8]}-old")
-    os.rename(final, old)
-    os.rename(staging, final)
-    if old.is_dir() and not old.is_symlink():
-        shutil.rmtree(old)
-    else:
-        old.unlink()
-
-
-def run_capture(task: CaptureTask, produce: Callable[[Path], ExtractResult] | None = None) -> CaptureOutcome:
-    """Extract one capture into ``<folder>/<stem>/`` through a staging folder (the task a worker runs).
-
-    A capture iqsift refuses (unreadable, plan outside its band ...) gives a failed outcome, not an
-    exception: running it again would fail the same way. Any other exception is raised for Dask to
-    retry. Either way the staging folder is removed. ``produce(staging)`` replaces the extraction (a
-    capture run in time pieces, :mod:`iqsift.jobs.split`).
-    """
-    started, t0 = _utc_now(), time.perf_counter()
-    folder = Path(task.folder)
-    final = folder / task.stem
-    staging = folder / f".{task.stem}{STAGING_MARK}{uuid.uuid4().hex[:12]}"
-    try:
-        with warnings.catch_warnings(record=True) as caught:
-            warnings.simplefilter("always")
-            made = (extract_file(task.capture, task.plan, staging, force=False, **task.options) if produce is None
-                    else produce(staging))
-            result = _moved(made, staging, final)
-        (staging / "report.json").write_text(dumps(result.to_dict()), encoding="utf-8")
-        report = result.to_dict()
-        outputs = tuple(OutputFile(str(Path(task.stem) / p.relative_to(staging)), sha256_of_file(p))
-                        for p in sorted(staging.rglob("*")) if p.is_file())
-        _commit_folder(staging, final, task.force)
-    except IqsiftError as exc:
-        shutil.rmtree(staging, ignore_errors=True)
-        return task.failed(_one_line(exc), {"started_utc": started, "finished_utc": _utc_now(),
-                                            "elapsed_s": time.perf_counter() - t0},
-                           _worker_address(), _versions())
-    except BaseException:
-        shutil.rmtree(staging, ignore_errors=True)
-        raise
-    said = tuple(" ".join(str(w.message).replace(str(staging), str(final)).split()) for w in caught)
-    timings = {"started_utc": started, "finished_utc": _utc_now(), "elapsed_s": time.perf_counter() - t0,
-               "processing_s": result.processing_s, "capture_s": result.selection.duration_s}
-    return CaptureOutcome(task.capture, task.stem, task.plan, "ok", None, outputs, len(result.channels),
-                          activity_segments(report, task.stem), said, task.options, task.plan_sha256, timings,
-                          _worker_address(), _versions(), worker_peak_rss_mb=_peak_rss_mb())
 
 
 # -- the batch ------------------------------------------------------------------------------------
@@ -480,10 +144,17 @@ def _resumable(task: CaptureTask, line: Mapping[str, Any] | None, folder: Path) 
         if not path.is_file() or sha256_of_file(path) != output["sha256"]:
             return None
     report_path = folder / task.stem / "report.json"
-    if not any(o["path"] == str(Path(task.stem) / "report.json") for o in line.get("outputs", ())):
+    listed = {o["path"] for o in line.get("outputs", ())}
+    if not all(str(Path(task.stem) / name) in listed for name in _expected_outputs(task)):
         return None
     report = json.loads(report_path.read_text(encoding="utf-8"))
     return CaptureOutcome.from_line(line, activity_segments(report, task.stem))
+
+
+def _expected_outputs(task: CaptureTask) -> list[str]:
+    """Files a capture's folder must list for its options (those named the same whatever the plan)."""
+    return ["report.json", *(["report.html"] if task.options.get("html") else []),
+            *([annotation_name(task.stem)] if task.options.get("annotate") else [])]
 
 
 def _check_outputs(folder: Path, tasks: Sequence[CaptureTask], *, force: bool, resume: bool) -> None:
@@ -534,7 +205,7 @@ def _connected(client: Client | None, workers: int | None, scheduler: str | None
         try:
             remote = Client(scheduler) if scheduler is not None else Client(scheduler_file=scheduler_file)
         except (OSError, TimeoutError, ValueError) as exc:
-            raise ParameterError(f"{name}: cannot connect to {scheduler or scheduler_file}: {_one_line(exc)}",
+            raise ParameterError(f"{name}: cannot connect to {scheduler or scheduler_file}: {one_line(exc)}",
                                  parameters=(name,)) from None
         with remote:
             yield remote, {"kind": "address" if scheduler is not None else "scheduler_file",
@@ -558,8 +229,8 @@ def _collected(future: Future, task: CaptureTask) -> CaptureOutcome:
         outcome: CaptureOutcome = future.result()
         return outcome
     exc = future.exception() if future.status == "error" else None
-    return task.failed(_one_line(exc) if exc is not None else f"task {future.status} by the Dask scheduler",
-                       {"finished_utc": _utc_now()})
+    return task.failed(one_line(exc) if exc is not None else f"task {future.status} by the Dask scheduler",
+                       {"finished_utc": utc_now()})
 
 
 def _run_on_cluster(tasks: Sequence[CaptureTask], connection: Mapping[str, Any], progress: Progress | None,
@@ -580,7 +251,7 @@ def _run_on_cluster(tasks: Sequence[CaptureTask], connection: Mapping[str, Any],
             try:
                 outcome, fronts, job = submit_capture(client, run_capture, task, split_seconds, TASK_RETRIES, tag)
             except (IqsiftError, OSError) as exc:
-                outcomes[task.stem] = task.failed(_one_line(exc), {"finished_utc": _utc_now()})
+                outcomes[task.stem] = task.failed(one_line(exc), {"finished_utc": utc_now()})
                 continue
             futures[outcome] = (task, {"seconds": split_seconds, "piece_samples": job.piece_samples,
                                        "pieces": job.pieces, "units": len(job.units)})
@@ -622,6 +293,9 @@ def batch_files(
     strict: bool = False,
     ppm: float | None = None,
     split_seconds: float | None = None,
+    iq_correct: bool = False,
+    annotate: bool = False,
+    html: bool = False,
 ) -> BatchResult:
     """Extract every capture with its plan, each into ``out_dir/<stem>/``, on Dask's distributed scheduler.
 
@@ -650,8 +324,13 @@ def batch_files(
     memory_limit : str or float or None
         Memory limit of each local worker process (Dask's ``memory_limit``: "auto" shares the
         machine's memory among them, "2GiB", bytes, or None for none).
-    spectra, plot_format, baseband, allow_nonfinite, format, rate, center, strict, ppm
-        As for :func:`extract_file`, for every capture.
+    spectra, plot_format, baseband, allow_nonfinite, format, rate, center, strict, ppm, iq_correct, html
+        As for :func:`extract_file`, for every capture (``html``: ``report.html`` and ``report_files/`` in
+        each capture's folder; ``iq_correct``: each capture's own first pass estimates its correction).
+    annotate : bool
+        Also write ``<stem>.annotated.sigmf-meta`` in each capture's folder: the recording's SigMF metadata
+        with one annotation per activity segment, as ``extract --annotate`` writes it, but metadata-only
+        (``core:metadata_only``; SigMF's ``core:dataset`` may only name a file beside the metadata).
     force : bool
         Replace existing capture folders, ``batch.jsonl`` and ``activity.csv``.
     resume : bool
@@ -661,8 +340,8 @@ def batch_files(
         Called with ``(1, total)`` as each capture (with ``split_seconds``: each piece) finishes.
     split_seconds : float, optional
         Cut each capture into time pieces of about this length (s, rounded to the filter bank's hop) run
-        in parallel, with outputs equal to a whole pass's (:mod:`iqsift.jobs.split`); not with spectra
-        or baseband.
+        in parallel, with outputs equal to a whole pass's (:mod:`iqsift.jobs.split`); with annotate, not
+        with spectra, baseband, html or iq_correct.
 
     Raises
     ------
@@ -686,6 +365,9 @@ def batch_files(
                "strict": strict}
     if ppm is not None:  # only when given: earlier batch logs without it still resume
         options["ppm"] = ppm
+    for name, wanted in (("iq_correct", iq_correct), ("annotate", annotate), ("html", html)):
+        if wanted:  # likewise only when asked for
+            options[name] = True
     if split_seconds is not None:
         check_split(split_seconds, options)
     tasks = _tasks(captures, plan, folder, options, force)
@@ -713,5 +395,5 @@ def batch_files(
     activity = tuple(sorted((s for c in ordered for s in c.activity), key=ActivitySegment.sort_key))
     write_atomically(folder / BATCH_LOG, lambda handle: handle.writelines(
         json.dumps(c.to_dict(), allow_nan=False) + "\n" for c in ordered), binary=False, force=True)
-    write_atomically(folder / ACTIVITY_CSV, _activity_csv(activity), binary=False, force=True)
+    write_atomically(folder / ACTIVITY_CSV, activity_csv_writer(activity), binary=False, force=True)
     return BatchResult(str(folder), cluster, ordered, activity, time.perf_counter() - started)

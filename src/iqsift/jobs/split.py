@@ -45,8 +45,9 @@ if TYPE_CHECKING:
 
 __all__ = ["PieceBaseband", "check_split", "SplitJob", "UnitState", "back_step", "front_piece", "plan_split", "submit_capture"]
 
-SPLIT_UNSUPPORTED = ("spectra", "baseband")
-"""Extract options a split capture cannot give yet (their accumulators and writers see the whole stream)."""
+SPLIT_UNSUPPORTED = ("spectra", "baseband", "html", "iq_correct")
+"""Extract options a split capture cannot give yet (their accumulators and writers see the whole stream;
+``html`` draws the stage spectra; ``iq_correct``'s first-pass estimate is not yet handed to the pieces)."""
 
 
 @dataclass(frozen=True)
@@ -120,7 +121,7 @@ def _extractor(job: SplitJob, cap: Any) -> Extractor:
 
 
 def check_split(split_seconds: float, options: Mapping[str, Any]) -> None:
-    """Refuse a bad ``split_seconds`` or options a split capture cannot give (spectra, baseband).
+    """Refuse a bad ``split_seconds`` or options a split capture cannot give (:data:`SPLIT_UNSUPPORTED`).
 
     Raises
     ------
@@ -143,7 +144,7 @@ def plan_split(capture: str, plan: str, options: Mapping[str, Any], split_second
     Raises
     ------
     ParameterError
-        For options a split capture cannot give (spectra, baseband), or a bad ``split_seconds``.
+        For options a split capture cannot give (:data:`SPLIT_UNSUPPORTED`), or a bad ``split_seconds``.
     """
     check_split(split_seconds, options)
     job_options = {k: options.get(k) for k in ("format", "rate", "center", "strict", "allow_nonfinite")}
