@@ -73,19 +73,20 @@ class CarrierNormaliser(Stage):
     at the end (flush is empty). Blocks may be 1-D (one channel) or 2-D with
     one channel per row (``rows``).
 
-    The divisor never falls below half the largest ``|d|`` of the next ``(N−1)/2``
-    samples (which the delayed signal path already holds): a carrier modulated
-    at most 100 % gives ``|d| ≤ 2c``, so in steady state the floor stays below
-    the level, but where a carrier comes on after silence (the level, a
-    symmetric low-pass, is only half-way up at the onset and near zero just
-    before it) the output stays within about ±1.5 instead of clipping.
+    The divisor is the largest level from the output's own to ``ahead`` =
+    min((N−1)/2, ``LOOK_AHEAD_S``) samples later (the delay grows by as much):
+    where a carrier comes on after silence the level, a symmetric low-pass,
+    is only half-way up at the onset and near zero just before it, and
+    dividing by it there drives the audio into clipping; the level a little
+    later is the carrier's. A steady carrier's level is unchanged (a tone's
+    audio is the same), a fading one is followed slightly early.
     """
 
     LEVEL_HOP = 64
     """Frame length of the level low-pass (samples): its outputs are complete this much later."""
 
-    PEAK_FLOOR = 0.5
-    """The divisor's floor as a share of the largest detector output in the look-ahead window."""
+    LOOK_AHEAD_S = 0.02
+    """Longest look-ahead of the divisor (s); the delay grows by as much."""
 
     def __init__(
         self,
@@ -117,7 +118,10 @@ class CarrierNormaliser(Stage):
         self.check_carrier = bool(check_carrier) and self.normalise
         self.max_gain = 10 ** (-max_gain_db / 20)
         self._lag = int(round(self.design.group_delay_samples))
-        self._wait = self.LEVEL_HOP - 1  # level index i - wait is complete once input i has arrived
+        # the divisor looks this far ahead (level samples): as far as the low-pass reaches, at most LOOK_AHEAD_S
+        self._ahead = min(self._lag, int(round(self.LOOK_AHEAD_S * self.rate_hz))) if self.normalise else 0
+        # output i divides by the levels i - wait .. i - wait + ahead, all complete once input i has arrived
+        self._wait = self.LEVEL_HOP - 1 + self._ahead
         self._delay = float(self._lag + self._wait)
         taps = np.asarray(self.design.taps, dtype=np.float64)
         self._cover_sum = np.cumsum(taps)  # LPF(v) for v a step: a difference of two of these
@@ -196,8 +200,9 @@ class CarrierNormaliser(Stage):
             dv *= valid
         rows_in = np.concatenate([dv, dv * d]) if self.check_carrier else dv
         levels = np.concatenate([self._levels, self._lp.process(rows_in)], axis=1)
-        both, self._levels = levels[:, :n], levels[:, n:]
-        cover = self._cover(first - self._wait + np.arange(n))
+        # the levels of outputs k = 0 .. n - 1 and of the `ahead` samples after them
+        both, self._levels = levels[:, : n + self._ahead], levels[:, n:]
+        cover = self._cover(first - self._wait + np.arange(n + self._ahead))
         if cover is not None:
             ok = cover > 1e-3
             both = np.where(ok, both / np.maximum(cover, 1e-3), 0.0)
@@ -206,17 +211,18 @@ class CarrierNormaliser(Stage):
         joined = np.concatenate([self._history, d], axis=1)
         delayed = joined[:, :n]
         self._history = joined[:, n:]
-        self.last_level = float(level[0, -1])
-        out = delayed - level
+        self.last_level = float(level[0, n - 1])
+        out = delayed - level[:, :n]
         if self.normalise:
-            out /= self._divisor(level, power, joined)
+            out /= self._divisor(level, power, n)
         out = out.astype(np.float32)
         return out[0] if flat else out
 
-    def _divisor(self, level: np.ndarray, power: np.ndarray | None, joined: np.ndarray) -> np.ndarray:
-        """What each output is divided by: the carrier level, with its floors."""
+    def _divisor(self, level: np.ndarray, power: np.ndarray | None, n: int) -> np.ndarray:
+        """What each of the ``n`` outputs is divided by: the largest carrier level from its own to
+        ``ahead`` samples later (``level`` holds them all), with the floors."""
         magnitude = np.abs(level)
-        running = np.maximum.accumulate(magnitude, axis=1)
+        running = np.maximum.accumulate(magnitude[:, :n], axis=1)
         np.maximum(running, self._strongest, out=running)
         self._strongest = running[:, -1:].copy()
         # carrier present: the mean of the detector output is most of its RMS (1/sqrt(1 + m^2/2) >= 0.8
@@ -227,10 +233,8 @@ class CarrierNormaliser(Stage):
             divisor = np.where(magnitude >= 0.5 * rms, magnitude, 3.0 * rms)
         else:
             divisor = magnitude
+        divisor = sliding_max(divisor, self._ahead + 1)
         np.maximum(divisor, np.maximum(running * self.max_gain, self.floor), out=divisor)
-        # look-ahead: output k is input k - lag - wait; the inputs up to k - wait are here (joined[k .. k + lag])
-        ahead = sliding_max(np.abs(joined[:, : joined.shape[1] - self._wait]), self._lag + 1)
-        np.maximum(divisor, self.PEAK_FLOOR * ahead, out=divisor)
         return divisor
 
     def flush(self) -> np.ndarray:
