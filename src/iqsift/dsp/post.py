@@ -73,8 +73,8 @@ class CarrierNormaliser(Stage):
     at the end (flush is empty). Blocks may be 1-D (one channel) or 2-D with
     one channel per row (``rows``).
 
-    The divisor is the largest level from the output's own to ``ahead`` =
-    min((N−1)/2, ``LOOK_AHEAD_S``) samples later (the delay grows by as much):
+    The divisor is at least 99 % of the largest level from the output's own to
+    ``ahead`` = min((N−1)/2, ``LOOK_AHEAD_S``) samples later (the delay grows by as much):
     where a carrier comes on after silence the level, a symmetric low-pass,
     is only half-way up at the onset and near zero just before it, and
     dividing by it there drives the audio into clipping; the level a little
@@ -87,6 +87,10 @@ class CarrierNormaliser(Stage):
 
     LOOK_AHEAD_S = 0.02
     """Longest look-ahead of the divisor (s); the delay grows by as much."""
+
+    AHEAD_SHARE = 0.99
+    """The divisor is at least this share of the largest level ahead: a steady carrier's level ripples
+    by at most the low-pass's stopband (60 dB: 0.1 % of the modulation), so it keeps its own level."""
 
     def __init__(
         self,
@@ -233,7 +237,8 @@ class CarrierNormaliser(Stage):
             divisor = np.where(magnitude >= 0.5 * rms, magnitude, 3.0 * rms)
         else:
             divisor = magnitude
-        divisor = sliding_max(divisor, self._ahead + 1)
+        ahead = sliding_max(divisor, self._ahead + 1)
+        divisor = np.maximum(divisor[:, :n], self.AHEAD_SHARE * ahead)
         np.maximum(divisor, np.maximum(running * self.max_gain, self.floor), out=divisor)
         return divisor
 
