@@ -14,11 +14,11 @@ from typing import Any
 import numpy as np
 from numpy.typing import ArrayLike
 
-from .batch import BatchFir, long_fft_size
 from .filters import design_lowpass, fractional_delay_taps
+from .gridfir import GridFir
 from .stages import FirFilter, Stage
 
-__all__ = ["CarrierNormaliser", "DelayTrim", "FractionalDelay", "Squelch"]
+__all__ = ["CarrierNormaliser", "DelayTrim", "FractionalDelay", "Squelch", "sliding_max"]
 
 
 class CarrierNormaliser(Stage):
@@ -56,15 +56,41 @@ class CarrierNormaliser(Stage):
 
     Notes
     -----
-    The signal path is delayed by the low-pass's group delay ``(N−1)/2``
-    (an integer: N is odd) so that ``d`` and ``c`` line up; that is
-    :attr:`delay`. The stage holds nothing at the end (flush is empty).
-    Blocks may be 1-D (one channel) or 2-D with one channel per row
-    (``rows``), all rows sharing the same validity mask. ``process(block)``
-    alone is the :class:`~iqsift.dsp.stages.Stage` protocol: the samples that
-    carry signal follow from ``settle_samples`` and :meth:`signal_ends`;
-    ``process(block, valid)`` states them explicitly instead.
+    The level is a normalised convolution (Knutsson & Westin 1993),
+    ``LPF(d·v) / LPF(v)`` with ``v`` 1 on the samples that carry signal and 0
+    on the upstream start-up (``settle_samples``) and the padding after
+    :meth:`signal_ends`, so the ends of a stream do not drag the level towards
+    zero; ``LPF(v)`` is the running sum of the taps (exact), and 1 where the
+    whole filter span carries signal.
+
+    The low-pass runs in double precision on frames of :attr:`LEVEL_HOP`
+    samples aligned to the absolute sample index
+    (:class:`~iqsift.dsp.gridfir.GridFir`), so the level, and the audio, are
+    bit-identical however the stream is cut into blocks (a live stream and a
+    file). The signal path is delayed by the low-pass's group delay
+    ``(N−1)/2`` (N is odd) plus ``LEVEL_HOP − 1`` samples, by which time the
+    level's frame is complete; that is :attr:`delay`. The stage holds nothing
+    at the end (flush is empty). Blocks may be 1-D (one channel) or 2-D with
+    one channel per row (``rows``).
+
+    The divisor is at least 99 % of the largest level from the output's own to
+    ``ahead`` = min((N−1)/2, ``LOOK_AHEAD_S``) samples later (the delay grows by as much):
+    where a carrier comes on after silence the level, a symmetric low-pass,
+    is only half-way up at the onset and near zero just before it, and
+    dividing by it there drives the audio into clipping; the level a little
+    later is the carrier's. A steady carrier's level is unchanged (a tone's
+    audio is the same), a fading one is followed slightly early.
     """
+
+    LEVEL_HOP = 64
+    """Frame length of the level low-pass (samples): its outputs are complete this much later."""
+
+    LOOK_AHEAD_S = 0.02
+    """Longest look-ahead of the divisor (s); the delay grows by as much."""
+
+    AHEAD_SHARE = 0.99
+    """The divisor is at least this share of the largest level ahead: a steady carrier's level ripples
+    by at most the low-pass's stopband (60 dB: 0.1 % of the modulation), so it keeps its own level."""
 
     def __init__(
         self,
@@ -96,10 +122,15 @@ class CarrierNormaliser(Stage):
         self.check_carrier = bool(check_carrier) and self.normalise
         self.max_gain = 10 ** (-max_gain_db / 20)
         self._lag = int(round(self.design.group_delay_samples))
-        self._delay = float(self._lag)
+        # the divisor looks this far ahead (level samples): as far as the low-pass reaches, at most LOOK_AHEAD_S
+        self._ahead = min(self._lag, int(round(self.LOOK_AHEAD_S * self.rate_hz))) if self.normalise else 0
+        # output i divides by the levels i - wait .. i - wait + ahead, all complete once input i has arrived
+        self._wait = self.LEVEL_HOP - 1 + self._ahead
+        self._delay = float(self._lag + self._wait)
+        taps = np.asarray(self.design.taps, dtype=np.float64)
+        self._cover_sum = np.cumsum(taps)  # LPF(v) for v a step: a difference of two of these
         # the level (and, to check for a carrier, the mean square) of every row: one filter run
-        self._lp = BatchFir(self.design.taps, self.rows * (2 if self.check_carrier else 1),
-                            long_fft_size(self.design.num_taps), rate_hz=self.rate_hz)
+        self._lp = GridFir(taps, self.rows * (2 if self.check_carrier else 1), self.LEVEL_HOP, np.float64)
         self.reset()
 
     @property
@@ -117,105 +148,118 @@ class CarrierNormaliser(Stage):
         """Input from sample ``samples_in`` on is padding: leave it out of the carrier level."""
         self._signal_end = int(samples_in)
 
-    def _validity(self, n: int) -> np.ndarray | None:
-        """Which of the next ``n`` inputs carry signal: not the upstream start-up (``settle_samples``)
-        nor padding after :meth:`signal_ends`. None: all of them (the usual case)."""
-        first = self._seen
-        self._seen += n
-        stop = self._signal_end + self.settle_samples if self._signal_end is not None else None
-        if first >= self.settle_samples and (stop is None or first + n <= stop):
+    def _stop(self) -> float:
+        """Input index where the padding starts (inf while the signal goes on)."""
+        return float("inf") if self._signal_end is None else float(self._signal_end + self.settle_samples)
+
+    def _validity(self, first: int, n: int) -> np.ndarray | None:
+        """Which of inputs ``first .. first + n − 1`` carry signal (None: all of them, the usual case)."""
+        stop = self._stop()
+        if first >= self.settle_samples and first + n <= stop:
             return None
         idx = first + np.arange(n)
-        keep = idx >= self.settle_samples
-        if stop is not None:
-            keep &= idx < stop
-        return keep
+        return (idx >= self.settle_samples) & (idx < stop)
+
+    def _cover(self, index: np.ndarray) -> np.ndarray | None:
+        """``LPF(v)`` at level indices ``index``: None where it is 1 (the whole span carries signal)."""
+        ntaps = self.design.num_taps
+        stop = self._stop()
+        if index[0] - self.settle_samples >= ntaps - 1 and index[-1] < stop:
+            return None
+        total = self._cover_sum
+
+        def partial(m: np.ndarray) -> np.ndarray:  # sum of taps 0..m
+            return np.where(m < 0, 0.0, total[np.clip(m, 0, ntaps - 1)])
+
+        lagged = index - self.settle_samples
+        cover = partial(lagged)
+        if stop != float("inf"):
+            cover = cover - partial(index - int(stop))
+        full = (lagged >= ntaps - 1) & (index < stop)
+        return np.where(full, 1.0, cover)
 
     def reset(self) -> None:
         self._lp.reset()
         self._seen = 0
         self._signal_end = None
-        self._cover = FirFilter(self.design.taps, self.rate_hz)
-        self._run = 0  # consecutive valid samples fed most recently
-        self._cover_stale = False
-        self._history = np.zeros((self.rows, self._lag), np.float32)
+        width = self._lp.rows
+        self._levels = np.zeros((width, self._wait))  # level outputs not yet used (first: before the stream)
+        self._history = np.zeros((self.rows, self._lag + self._wait), np.float32)
         self.last_level: float | None = None
-        self._strongest = np.zeros((self.rows, 1), np.float32)
+        self._strongest = np.zeros((self.rows, 1))
 
-    def _coverage(self, n: int, valid: np.ndarray | None) -> np.ndarray | None:
-        """LPF of the validity mask (None where it is 1 everywhere, the steady state of most blocks)."""
-        ntaps = self.design.num_taps
-        if valid is None or bool(np.all(valid)):
-            self._run += n
-            if self._run - n >= ntaps:
-                # the cover filter has seen only valid samples for a whole filter length: its output is 1
-                self._cover_stale = True
-                return None
-            return np.asarray(self._cover.process(np.ones(n, np.float32)), dtype=np.float32)
-        v = np.asarray(valid, dtype=np.float32)
-        if self._cover_stale:  # bring the skipped cover filter back: its history is all ones
-            self._cover.reset()
-            self._cover.process(np.ones(ntaps, np.float32))
-            self._cover_stale = False
-        last_invalid = np.flatnonzero(v == 0)
-        self._run = n - 1 - int(last_invalid[-1]) if last_invalid.size else self._run + n
-        return np.asarray(self._cover.process(v), dtype=np.float32)
-
-    def process(self, block: ArrayLike, valid: np.ndarray | None = None) -> np.ndarray:
-        """Process a block (1-D, or rows × n); ``valid`` marks the samples that carry signal (default: all).
-
-        The level is a normalised convolution (Knutsson & Westin 1993):
-        ``LPF(d·v) / LPF(v)``, so the start and end of a stream (and gaps
-        marked invalid) do not drag the level towards zero.
-        """
+    def process(self, block: ArrayLike) -> np.ndarray:
+        """Process a block (1-D, or rows × n); float32 out, same shape."""
         d = np.asarray(block, dtype=np.float32)
         flat = d.ndim == 1
         d = d.reshape(1, -1) if flat else d
         n = d.shape[1]
         if n == 0:
             return np.zeros(0 if flat else (self.rows, 0), np.float32)
-        own = self._validity(n)
-        if valid is None:
-            valid = own
-        cover = self._coverage(n, valid)
-        dv = d if valid is None or cover is None else d * np.asarray(valid, dtype=np.float32)
-        if self.check_carrier:
-            both = self._lp.process(np.concatenate([dv, dv * d]))
-            level, power = both[: self.rows], both[self.rows :]
-        else:
-            level, power = self._lp.process(dv), None
+        first = self._seen
+        self._seen += n
+        valid = self._validity(first, n)
+        dv = d.astype(np.float64)
+        if valid is not None:
+            dv *= valid
+        rows_in = np.concatenate([dv, dv * d]) if self.check_carrier else dv
+        levels = np.concatenate([self._levels, self._lp.process(rows_in)], axis=1)
+        # the levels of outputs k = 0 .. n - 1 and of the `ahead` samples after them
+        both, self._levels = levels[:, : n + self._ahead], levels[:, n:]
+        cover = self._cover(first - self._wait + np.arange(n + self._ahead))
         if cover is not None:
             ok = cover > 1e-3
-            safe = np.maximum(cover, np.float32(1e-3))
-            level = np.where(ok, level / safe, np.float32(0))
-            if power is not None:
-                power = np.where(ok, power / safe, np.float32(0))
+            both = np.where(ok, both / np.maximum(cover, 1e-3), 0.0)
+        level = both[: self.rows]
+        power = both[self.rows :] if self.check_carrier else None
         joined = np.concatenate([self._history, d], axis=1)
         delayed = joined[:, :n]
         self._history = joined[:, n:]
-        self.last_level = float(level[0, -1])
-        out = delayed - level
+        self.last_level = float(level[0, n - 1])
+        out = delayed - level[:, :n]
         if self.normalise:
-            magnitude = np.abs(level)
-            running = np.maximum.accumulate(magnitude, axis=1)
-            np.maximum(running, self._strongest, out=running)
-            self._strongest = running[:, -1:].copy()
-            # carrier present: the mean of the detector output is most of its RMS (1/sqrt(1 + m^2/2) >= 0.8
-            # for a tone at m <= 1). Without a carrier (a coherent detector fed only noise, the mean near 0)
-            # dividing by the mean would blow the noise up: divide by 3 x the RMS instead (noise at -10 dBFS).
-            if power is not None:
-                rms = np.sqrt(np.maximum(power, np.float32(0)))
-                divisor = np.where(magnitude >= 0.5 * rms, magnitude, 3.0 * rms)
-            else:
-                divisor = magnitude
-            np.maximum(divisor, np.maximum(running * np.float32(self.max_gain), np.float32(self.floor)), out=divisor)
-            out /= divisor
+            out /= self._divisor(level, power, n)
         out = out.astype(np.float32)
         return out[0] if flat else out
+
+    def _divisor(self, level: np.ndarray, power: np.ndarray | None, n: int) -> np.ndarray:
+        """What each of the ``n`` outputs is divided by: the largest carrier level from its own to
+        ``ahead`` samples later (``level`` holds them all), with the floors."""
+        magnitude = np.abs(level)
+        running = np.maximum.accumulate(magnitude[:, :n], axis=1)
+        np.maximum(running, self._strongest, out=running)
+        self._strongest = running[:, -1:].copy()
+        # carrier present: the mean of the detector output is most of its RMS (1/sqrt(1 + m^2/2) >= 0.8
+        # for a tone at m <= 1). Without a carrier (a coherent detector fed only noise, the mean near 0)
+        # dividing by the mean would blow the noise up: divide by 3 x the RMS instead (noise at -10 dBFS).
+        if power is not None:
+            rms = np.sqrt(np.maximum(power, 0.0))
+            divisor = np.where(magnitude >= 0.5 * rms, magnitude, 3.0 * rms)
+        else:
+            divisor = magnitude
+        ahead = sliding_max(divisor, self._ahead + 1)
+        divisor = np.maximum(divisor[:, :n], self.AHEAD_SHARE * ahead)
+        np.maximum(divisor, np.maximum(running * self.max_gain, self.floor), out=divisor)
+        return divisor
 
     def flush(self) -> np.ndarray:
         self.reset()
         return np.zeros(0, np.float32)
+
+
+def sliding_max(x: np.ndarray, width: int) -> np.ndarray:
+    """``max(x[..., k : k + width])`` for every k with a whole window, along the last axis (exact).
+
+    Doubling: the maxima over windows of 1, 2, 4, ... samples, then two overlapping windows of the
+    largest power of two not above ``width`` (log2(width) passes; no per-sample loop).
+    """
+    m = np.asarray(x)
+    span = 1
+    while 2 * span <= width:
+        m = np.maximum(m[..., : m.shape[-1] - span], m[..., span:])
+        span *= 2
+    count = x.shape[-1] - width + 1
+    return np.maximum(m[..., :count], m[..., width - span : width - span + count])
 
 
 class DelayTrim(Stage):
