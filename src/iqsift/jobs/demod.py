@@ -6,14 +6,13 @@ import os
 import time
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from ..captures import AudioWriter, OutputSet, annotated_metadata, check_annotation_path
 from ..captures.audio_stream import StreamAudioWriter
 from ..channel import Channel
 from ..errors import ParameterError
 from ..jsonable import dumps
-from ..receiver import Receiver, ReceiverReport
 from .annotations import activity_annotations
 from .common import (
     CaptureArg,
@@ -29,6 +28,9 @@ from .common import (
     stamped,
     with_iq_correction,
 )
+
+if TYPE_CHECKING:  # the receiver (filter design, FFT engine) is imported once the capture is open
+    from ..receiver import Receiver, ReceiverReport
 
 __all__ = ["DemodOutputs", "DemodResult", "demod_file"]
 
@@ -195,6 +197,8 @@ def demod_file(
                 verify=verify, ppm=ppm) as cap:
         selection = cap.select(start, duration)
         cap.check_ahead(selection.start, selection.count)  # hash the data while the job prepares
+        from ..receiver import Receiver  # here: its imports (scipy.fft, the stages) overlap that hash
+
         receiver = Receiver.for_capture(cap, channel, selection, engine=engine, agc=agc, spectra=bool(spectra) or html)
         if annotate or html:  # activity (and the page's table) need the measurements
             receiver.analyze(time_offset_s=selection.start / cap.sample_rate_hz)  # activity in capture time

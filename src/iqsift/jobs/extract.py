@@ -6,7 +6,7 @@ import os
 import time
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any, Mapping
+from typing import TYPE_CHECKING, Any, Mapping
 
 from ..captures import (
     AudioWriter,
@@ -19,10 +19,8 @@ from ..captures import (
 )
 from ..captures.atomic import why_not_a_folder
 from ..errors import ParameterError
-from ..extractor import Extractor
 from ..jsonable import dumps
 from ..plan import ChannelPlan, load_plan
-from ..receiver import ReceiverReport
 from .annotations import activity_annotations
 from .common import (
     CaptureArg,
@@ -38,6 +36,10 @@ from .common import (
     stamped,
     with_iq_correction,
 )
+
+if TYPE_CHECKING:  # the receivers (filter design, FFT engine) are imported once the capture is open
+    from ..extractor import Extractor
+    from ..receiver import ReceiverReport
 
 __all__ = ["ChannelResult", "ExtractResult", "extract_file"]
 
@@ -186,6 +188,8 @@ def extract_file(
                 verify=verify, ppm=ppm if ppm is not None else plan_obj.ppm) as cap:
         selection = cap.select(start, duration)
         cap.check_ahead(selection.start, selection.count)  # hash the data while the job prepares
+        from ..extractor import Extractor  # here: its imports (scipy.fft, the stages) overlap that hash
+
         extractor = Extractor.from_plan(cap, plan_obj, selection=selection, spectra=spectra or html)
         parent = folder.parent if str(folder.parent) else Path(".")
         if not parent.is_dir():
