@@ -28,9 +28,6 @@ Conventions
 
 from __future__ import annotations
 
-import csv
-import io
-import json
 import math
 from dataclasses import dataclass
 import os
@@ -44,7 +41,8 @@ from numpy.typing import ArrayLike
 
 from .captures.atomic import write_atomically
 from .errors import ParameterError
-from .spectra import Spectrum, SpectrogramResult
+from .plot_data import save_plot_data
+from .spectra import Spectrum
 from .units import format_hz
 
 if TYPE_CHECKING:  # matplotlib itself is imported lazily, in _matplotlib()
@@ -659,71 +657,3 @@ def plot_waveform(
     _check_fmt(fmt, path)
     fig = _build_waveform_figure(audio, rate_hz, title=_check_title(title))
     return _save(fig, path, fmt, force)
-
-
-# ----------------------------------------------------------------------------- data
-
-
-def _jsonable(obj: Any) -> Any:
-    if isinstance(obj, Spectrum):
-        return obj.to_dict()
-    if isinstance(obj, SpectrogramResult):
-        return {"times_s": _jsonable(obj.times_s), "freqs_hz": _jsonable(obj.freqs_hz),
-                "power_db": _jsonable(obj.power_db), "units": obj.units}
-    if isinstance(obj, Mapping):
-        return {str(k): _jsonable(v) for k, v in obj.items()}
-    if isinstance(obj, np.ndarray):
-        return _jsonable(obj.tolist())
-    if isinstance(obj, (list, tuple)):
-        return [_jsonable(v) for v in obj]
-    if isinstance(obj, (np.bool_, bool)):
-        return bool(obj)
-    if isinstance(obj, (np.integer, int)):
-        return int(obj)
-    if isinstance(obj, (np.floating, float)):
-        f = float(obj)
-        return f if math.isfinite(f) else None
-    if isinstance(obj, (str, type(None))):
-        return obj
-    if isinstance(obj, Path):
-        return str(obj)
-    raise ParameterError(f"save_plot_data: cannot write a {type(obj).__name__} as JSON")
-
-
-def save_plot_data(obj: Any, path: str | os.PathLike, *, force: bool = True) -> Path:
-    """Write the data behind a plot, atomically, as JSON or CSV (by the file suffix).
-
-    ``.json``: a :class:`~iqsift.spectra.Spectrum`, a
-    :class:`~iqsift.spectra.SpectrogramResult`, or any mapping/sequence of numbers,
-    strings and arrays (e.g. ``{"stages": [s.to_dict() for s in spectra]}``);
-    non-finite floats become ``null``.
-    ``.csv``: a Spectrum (``freq_hz,level...`` rows) or a mapping of equal-length 1-D
-    columns (header = keys).
-    """
-    path = Path(path)
-    suffix = path.suffix.lower()
-    if suffix == ".json":
-        text = json.dumps(_jsonable(obj), indent=1, allow_nan=False)
-
-        def write(fh: Any) -> None:
-            fh.write(text)
-            fh.write("\n")
-
-        return write_atomically(path, write, binary=False, force=force)
-    if suffix == ".csv":
-        if isinstance(obj, Spectrum):
-            return obj.to_csv(path, force=force)
-        if not isinstance(obj, Mapping) or not obj:
-            raise ParameterError(f"{path}: CSV needs a Spectrum or a mapping of equal-length columns, got {type(obj).__name__}")
-        cols = {str(k): np.asarray(v).ravel() for k, v in obj.items()}
-        lengths = {c.size for c in cols.values()}
-        if len(lengths) != 1:
-            raise ParameterError(f"{path}: CSV columns must have equal lengths, got {sorted(lengths)}")
-        buf = io.StringIO()
-        w = csv.writer(buf, lineterminator="\n")
-        w.writerow(cols.keys())
-        for row in zip(*(c.tolist() for c in cols.values())):
-            w.writerow([f"{v:.15g}" if isinstance(v, float) else v for v in row])
-        text = buf.getvalue()
-        return write_atomically(path, lambda fh: fh.write(text), binary=False, force=force)
-    raise ParameterError(f"{path}: plot data is written as .json or .csv, got suffix {suffix or '(none)'!r}")
