@@ -34,7 +34,7 @@ import os
 import sys
 from pathlib import Path
 from types import ModuleType
-from typing import TYPE_CHECKING, Any, Mapping, Sequence
+from typing import IO, TYPE_CHECKING, Any, Mapping, Sequence, Union
 
 import numpy as np
 from numpy.typing import ArrayLike
@@ -52,6 +52,7 @@ __all__ = [
     "Band",
     "PALETTE",
     "db_range",
+    "load_matplotlib",
     "plot_stage_spectrum",
     "plot_overview",
     "plot_spectrogram",
@@ -72,6 +73,9 @@ PALETTE: dict[str, str] = {
     "face": "#fbfbf8",
 }
 """The project's own colour scheme (names → hex colours)."""
+
+PlotTarget = Union[str, "os.PathLike[str]", IO[bytes]]
+"""Where a figure goes: a file path (written atomically) or an open binary file (written as is)."""
 
 _FORMATS = ("png", "svg")
 _DPI = 110
@@ -117,9 +121,20 @@ def _matplotlib() -> tuple[ModuleType, type[Figure]]:
     return matplotlib, Figure
 
 
-def _check_fmt(fmt: str, path: str | os.PathLike) -> str:
+def load_matplotlib() -> None:
+    """Import matplotlib for off-screen drawing now (every writer does it when first called).
+
+    For a caller that forks (:mod:`iqsift.plot_fork`): the import is then paid once, before the fork.
+    """
+    _matplotlib()
+    import matplotlib.backends.backend_agg  # noqa: F401  (the canvas every writer draws on)
+
+
+def _check_fmt(fmt: str, path: PlotTarget) -> str:
     if fmt not in _FORMATS:
         raise ParameterError(f"fmt: must be 'png' or 'svg', got {fmt!r}")
+    if hasattr(path, "write"):
+        return fmt  # an open file: no name to agree with
     suffix = Path(path).suffix.lower().lstrip(".")
     if suffix in _FORMATS and suffix != fmt:
         raise ParameterError(f"{path}: the file name says .{suffix} but fmt={fmt!r}; make them agree")
@@ -141,7 +156,7 @@ def _check_title(title: Any) -> str:
     return title
 
 
-def _save(fig: Any, path: str | os.PathLike, fmt: str, force: bool) -> Path:
+def _save(fig: Any, path: PlotTarget, fmt: str, force: bool) -> Path | IO[bytes]:
     # no creation date in the file, so the same figure is the same bytes (PNG carries none by default)
     metadata = {"Date": None} if fmt == "svg" else {}
 
@@ -151,6 +166,9 @@ def _save(fig: Any, path: str | os.PathLike, fmt: str, force: bool) -> Path:
         with mpl.rc_context({"svg.hashsalt": _RC["svg.hashsalt"]}):
             fig.savefig(fh, format=fmt, dpi=_DPI, metadata=metadata)
 
+    if not isinstance(path, (str, os.PathLike)):
+        write(path)
+        return path
     return write_atomically(path, write, binary=True, force=force)
 
 
@@ -346,22 +364,22 @@ def _build_stage_figure(
 
 def plot_stage_spectrum(
     spectrum: Spectrum,
-    path: str | os.PathLike,
+    path: PlotTarget,
     *,
     title: str,
     filter_overlay: Mapping[str, Any] | None = None,
     channel_band: tuple[float, float] | float | None = None,
     fmt: str = "png",
     force: bool = True,
-) -> Path:
+) -> Path | IO[bytes]:
     """Plot one tap point's spectrum.
 
     Parameters
     ----------
     spectrum : Spectrum
         From :meth:`iqsift.spectra.WelchAccumulator.result`.
-    path : path-like
-        Output file (written atomically).
+    path : path-like or binary file
+        Output file (written atomically), or an open binary file to write the figure into.
     title : str
         Figure title; name the capture and the channel.
     filter_overlay : mapping, optional
@@ -379,7 +397,7 @@ def plot_stage_spectrum(
 
     Returns
     -------
-    pathlib.Path
+    pathlib.Path or the file given
     """
     _check_fmt(fmt, path)
     fig = _build_stage_figure(spectrum, title=_check_title(title), filter_overlay=filter_overlay, channel_band=channel_band)
@@ -432,14 +450,14 @@ def _build_overview_figure(
 
 def plot_overview(
     spectra: Sequence[Spectrum],
-    path: str | os.PathLike,
+    path: PlotTarget,
     *,
     title: str,
     overlays: Any = None,
     channel_band: Any = None,
     fmt: str = "png",
     force: bool = True,
-) -> Path:
+) -> Path | IO[bytes]:
     """Every stage's spectrum, stacked top to bottom in chain order, in one figure.
 
     Each panel has its own frequency axis (the rates differ) and the same dB span.
@@ -512,14 +530,14 @@ def plot_spectrogram(
     times: ArrayLike,
     freqs: ArrayLike,
     power_db: ArrayLike,
-    path: str | os.PathLike,
+    path: PlotTarget,
     *,
     title: str,
     fmt: str = "png",
     units: str = "dBFS/Hz",
     center_hz: float = 0.0,
     force: bool = True,
-) -> Path:
+) -> Path | IO[bytes]:
     """Time-frequency picture (e.g. from :class:`iqsift.spectra.SpectrogramAccumulator`).
 
     Parameters
@@ -636,8 +654,8 @@ def _build_waveform_figure(audio: ArrayLike, rate_hz: float, *, title: str) -> F
 
 
 def plot_waveform(
-    audio: ArrayLike, rate_hz: float, path: str | os.PathLike, *, title: str, fmt: str = "png", force: bool = True
-) -> Path:
+    audio: ArrayLike, rate_hz: float, path: PlotTarget, *, title: str, fmt: str = "png", force: bool = True
+) -> Path | IO[bytes]:
     """Audio waveform (top) and short-term level in dBFS (bottom) against time in seconds.
 
     Short audio is drawn sample by sample; long audio as the min/max of each pixel
