@@ -184,7 +184,6 @@ def write_stage_plots(receiver, out_dir: Path, *, capture_name: str, fmt: str = 
     ch = receiver.channel
     title = f"{capture_name}: {ch.name} ({ch.mode}, {ch.bandwidth_hz:g} Hz)"
     extras = stage_overlays(receiver)
-    written: list[Path] = []
 
     def target(name: str) -> Path:
         final = out_dir / name
@@ -219,18 +218,18 @@ def write_stage_plots(receiver, out_dir: Path, *, capture_name: str, fmt: str = 
     if audio is not None and audio.size:
         figures.append((f"waveform.{fmt}", partial(plots.plot_waveform, audio, receiver.audio_rate_hz,
                                                    title=f"{title}\naudio", fmt=fmt)))
-    # the child process draws the biggest figures while this one draws the rest and writes the data
+    names = [n for fig, _ in figures for n in (fig, *([data[fig][0]] if fig in data else []))]
+    paths = {n: target(n) for n in names}  # every file claimed before the drawing starts
+    # the child process draws the biggest figures while this one draws the rest
     plots.load_matplotlib()  # imported once, before the fork
     drawn = draw_figures(figures,
                          child_share=[f"overview.{fmt}", f"waveform.{fmt}", f"spectrogram_audio.{fmt}"])
     for name, _ in figures:
-        write_atomically(target(name), partial(_write_bytes, drawn[name]), binary=True, force=True)
-        written.append(out_dir / name)
+        write_atomically(paths[name], partial(_write_bytes, drawn[name]), binary=True, force=True)
         if name in data:
             json_name, values = data[name]
-            save_plot_data(values, target(json_name))
-            written.append(out_dir / json_name)
-    return written
+            save_plot_data(values, paths[json_name])
+    return [out_dir / n for n in names]
 
 
 def _write_bytes(content: bytes, fh: Any) -> None:
