@@ -17,7 +17,7 @@ LAYERS: list[tuple[str, ...]] = [
      "iqsift.reference"),
     ("iqsift.emission", "iqsift.channel", "iqsift.rasters", "iqsift.plan", "iqsift.captures", "iqsift.dsp",
      "iqsift.spectra", "iqsift.schemas"),
-    ("iqsift.measure", "iqsift.receiver", "iqsift.survey", "iqsift.synth", "iqsift.plots",
+    ("iqsift.measure", "iqsift.receiver", "iqsift.survey", "iqsift.synth", "iqsift.plots", "iqsift.plot_data", "iqsift.plot_fork",
      "iqsift.activity_plot"),
     ("iqsift.extractor", "iqsift.stage_plots", "iqsift.html_report"),
     ("iqsift.jobs",),

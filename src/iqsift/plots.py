@@ -28,23 +28,21 @@ Conventions
 
 from __future__ import annotations
 
-import csv
-import io
-import json
 import math
 from dataclasses import dataclass
 import os
 import sys
 from pathlib import Path
 from types import ModuleType
-from typing import TYPE_CHECKING, Any, Mapping, Sequence
+from typing import IO, TYPE_CHECKING, Any, Mapping, Sequence, Union
 
 import numpy as np
 from numpy.typing import ArrayLike
 
 from .captures.atomic import write_atomically
 from .errors import ParameterError
-from .spectra import Spectrum, SpectrogramResult
+from .plot_data import save_plot_data
+from .spectra import Spectrum
 from .units import format_hz
 
 if TYPE_CHECKING:  # matplotlib itself is imported lazily, in _matplotlib()
@@ -54,6 +52,7 @@ __all__ = [
     "Band",
     "PALETTE",
     "db_range",
+    "load_matplotlib",
     "plot_stage_spectrum",
     "plot_overview",
     "plot_spectrogram",
@@ -75,6 +74,9 @@ PALETTE: dict[str, str] = {
 }
 """The project's own colour scheme (names → hex colours)."""
 
+PlotTarget = Union[str, "os.PathLike[str]", IO[bytes]]
+"""Where a figure goes: a file path (written atomically) or an open binary file (written as is)."""
+
 _FORMATS = ("png", "svg")
 _DPI = 110
 _WIDTH_IN = 10.0
@@ -83,6 +85,7 @@ _RC = {
     "svg.hashsalt": "iqsift",  # fixed ids in SVG output: byte-reproducible figures
     "font.size": 10.5,
     "axes.titlesize": 11,
+    "axes.titley": 1.0,  # titles sit on the top spine (nothing is drawn above the axes): no search for their height
     "axes.labelsize": 10.5,
     "xtick.labelsize": 9.5,
     "ytick.labelsize": 9.5,
@@ -119,9 +122,20 @@ def _matplotlib() -> tuple[ModuleType, type[Figure]]:
     return matplotlib, Figure
 
 
-def _check_fmt(fmt: str, path: str | os.PathLike) -> str:
+def load_matplotlib() -> None:
+    """Import matplotlib for off-screen drawing now (every writer does it when first called).
+
+    For a caller that forks (:mod:`iqsift.plot_fork`): the import is then paid once, before the fork.
+    """
+    _matplotlib()
+    import matplotlib.backends.backend_agg  # noqa: F401  (the canvas every writer draws on)
+
+
+def _check_fmt(fmt: str, path: PlotTarget) -> str:
     if fmt not in _FORMATS:
         raise ParameterError(f"fmt: must be 'png' or 'svg', got {fmt!r}")
+    if hasattr(path, "write"):
+        return fmt  # an open file: no name to agree with
     suffix = Path(path).suffix.lower().lstrip(".")
     if suffix in _FORMATS and suffix != fmt:
         raise ParameterError(f"{path}: the file name says .{suffix} but fmt={fmt!r}; make them agree")
@@ -143,7 +157,7 @@ def _check_title(title: Any) -> str:
     return title
 
 
-def _save(fig: Any, path: str | os.PathLike, fmt: str, force: bool) -> Path:
+def _save(fig: Any, path: PlotTarget, fmt: str, force: bool) -> Path | IO[bytes]:
     # no creation date in the file, so the same figure is the same bytes (PNG carries none by default)
     metadata = {"Date": None} if fmt == "svg" else {}
 
@@ -153,6 +167,9 @@ def _save(fig: Any, path: str | os.PathLike, fmt: str, force: bool) -> Path:
         with mpl.rc_context({"svg.hashsalt": _RC["svg.hashsalt"]}):
             fig.savefig(fh, format=fmt, dpi=_DPI, metadata=metadata)
 
+    if not isinstance(path, (str, os.PathLike)):
+        write(path)
+        return path
     return write_atomically(path, write, binary=True, force=force)
 
 
@@ -348,22 +365,22 @@ def _build_stage_figure(
 
 def plot_stage_spectrum(
     spectrum: Spectrum,
-    path: str | os.PathLike,
+    path: PlotTarget,
     *,
     title: str,
     filter_overlay: Mapping[str, Any] | None = None,
     channel_band: tuple[float, float] | float | None = None,
     fmt: str = "png",
     force: bool = True,
-) -> Path:
+) -> Path | IO[bytes]:
     """Plot one tap point's spectrum.
 
     Parameters
     ----------
     spectrum : Spectrum
         From :meth:`iqsift.spectra.WelchAccumulator.result`.
-    path : path-like
-        Output file (written atomically).
+    path : path-like or binary file
+        Output file (written atomically), or an open binary file to write the figure into.
     title : str
         Figure title; name the capture and the channel.
     filter_overlay : mapping, optional
@@ -381,7 +398,7 @@ def plot_stage_spectrum(
 
     Returns
     -------
-    pathlib.Path
+    pathlib.Path or the file given
     """
     _check_fmt(fmt, path)
     fig = _build_stage_figure(spectrum, title=_check_title(title), filter_overlay=filter_overlay, channel_band=channel_band)
@@ -434,14 +451,14 @@ def _build_overview_figure(
 
 def plot_overview(
     spectra: Sequence[Spectrum],
-    path: str | os.PathLike,
+    path: PlotTarget,
     *,
     title: str,
     overlays: Any = None,
     channel_band: Any = None,
     fmt: str = "png",
     force: bool = True,
-) -> Path:
+) -> Path | IO[bytes]:
     """Every stage's spectrum, stacked top to bottom in chain order, in one figure.
 
     Each panel has its own frequency axis (the rates differ) and the same dB span.
@@ -514,14 +531,14 @@ def plot_spectrogram(
     times: ArrayLike,
     freqs: ArrayLike,
     power_db: ArrayLike,
-    path: str | os.PathLike,
+    path: PlotTarget,
     *,
     title: str,
     fmt: str = "png",
     units: str = "dBFS/Hz",
     center_hz: float = 0.0,
     force: bool = True,
-) -> Path:
+) -> Path | IO[bytes]:
     """Time-frequency picture (e.g. from :class:`iqsift.spectra.SpectrogramAccumulator`).
 
     Parameters
@@ -638,8 +655,8 @@ def _build_waveform_figure(audio: ArrayLike, rate_hz: float, *, title: str) -> F
 
 
 def plot_waveform(
-    audio: ArrayLike, rate_hz: float, path: str | os.PathLike, *, title: str, fmt: str = "png", force: bool = True
-) -> Path:
+    audio: ArrayLike, rate_hz: float, path: PlotTarget, *, title: str, fmt: str = "png", force: bool = True
+) -> Path | IO[bytes]:
     """Audio waveform (top) and short-term level in dBFS (bottom) against time in seconds.
 
     Short audio is drawn sample by sample; long audio as the min/max of each pixel
@@ -659,71 +676,3 @@ def plot_waveform(
     _check_fmt(fmt, path)
     fig = _build_waveform_figure(audio, rate_hz, title=_check_title(title))
     return _save(fig, path, fmt, force)
-
-
-# ----------------------------------------------------------------------------- data
-
-
-def _jsonable(obj: Any) -> Any:
-    if isinstance(obj, Spectrum):
-        return obj.to_dict()
-    if isinstance(obj, SpectrogramResult):
-        return {"times_s": _jsonable(obj.times_s), "freqs_hz": _jsonable(obj.freqs_hz),
-                "power_db": _jsonable(obj.power_db), "units": obj.units}
-    if isinstance(obj, Mapping):
-        return {str(k): _jsonable(v) for k, v in obj.items()}
-    if isinstance(obj, np.ndarray):
-        return _jsonable(obj.tolist())
-    if isinstance(obj, (list, tuple)):
-        return [_jsonable(v) for v in obj]
-    if isinstance(obj, (np.bool_, bool)):
-        return bool(obj)
-    if isinstance(obj, (np.integer, int)):
-        return int(obj)
-    if isinstance(obj, (np.floating, float)):
-        f = float(obj)
-        return f if math.isfinite(f) else None
-    if isinstance(obj, (str, type(None))):
-        return obj
-    if isinstance(obj, Path):
-        return str(obj)
-    raise ParameterError(f"save_plot_data: cannot write a {type(obj).__name__} as JSON")
-
-
-def save_plot_data(obj: Any, path: str | os.PathLike, *, force: bool = True) -> Path:
-    """Write the data behind a plot, atomically, as JSON or CSV (by the file suffix).
-
-    ``.json``: a :class:`~iqsift.spectra.Spectrum`, a
-    :class:`~iqsift.spectra.SpectrogramResult`, or any mapping/sequence of numbers,
-    strings and arrays (e.g. ``{"stages": [s.to_dict() for s in spectra]}``);
-    non-finite floats become ``null``.
-    ``.csv``: a Spectrum (``freq_hz,level...`` rows) or a mapping of equal-length 1-D
-    columns (header = keys).
-    """
-    path = Path(path)
-    suffix = path.suffix.lower()
-    if suffix == ".json":
-        text = json.dumps(_jsonable(obj), indent=1, allow_nan=False)
-
-        def write(fh: Any) -> None:
-            fh.write(text)
-            fh.write("\n")
-
-        return write_atomically(path, write, binary=False, force=force)
-    if suffix == ".csv":
-        if isinstance(obj, Spectrum):
-            return obj.to_csv(path, force=force)
-        if not isinstance(obj, Mapping) or not obj:
-            raise ParameterError(f"{path}: CSV needs a Spectrum or a mapping of equal-length columns, got {type(obj).__name__}")
-        cols = {str(k): np.asarray(v).ravel() for k, v in obj.items()}
-        lengths = {c.size for c in cols.values()}
-        if len(lengths) != 1:
-            raise ParameterError(f"{path}: CSV columns must have equal lengths, got {sorted(lengths)}")
-        buf = io.StringIO()
-        w = csv.writer(buf, lineterminator="\n")
-        w.writerow(cols.keys())
-        for row in zip(*(c.tolist() for c in cols.values())):
-            w.writerow([f"{v:.15g}" if isinstance(v, float) else v for v in row])
-        text = buf.getvalue()
-        return write_atomically(path, lambda fh: fh.write(text), binary=False, force=force)
-    raise ParameterError(f"{path}: plot data is written as .json or .csv, got suffix {suffix or '(none)'!r}")

@@ -11,10 +11,15 @@ channel filter's edges and its response are drawn on the stages it acts on.
 
 from __future__ import annotations
 
+from functools import partial
 from pathlib import Path
 from typing import Any
 
 import numpy as np
+
+from .captures.atomic import write_atomically
+from .plot_data import save_plot_data
+from .plot_fork import Draw, draw_figures
 
 __all__ = ["AudioKeeper", "write_stage_plots", "stage_overlays", "stage_plot_names", "check_stage_plot_folder"]
 
@@ -179,7 +184,6 @@ def write_stage_plots(receiver, out_dir: Path, *, capture_name: str, fmt: str = 
     ch = receiver.channel
     title = f"{capture_name}: {ch.name} ({ch.mode}, {ch.bandwidth_hz:g} Hz)"
     extras = stage_overlays(receiver)
-    written: list[Path] = []
 
     def target(name: str) -> Path:
         final = out_dir / name
@@ -189,38 +193,47 @@ def write_stage_plots(receiver, out_dir: Path, *, capture_name: str, fmt: str = 
         spectra["input"] = _around_channel(spectra["input"], receiver)
     stage_names = sorted((n for n in spectra if n.startswith("stage")), key=lambda n: int(n[5:]))
     order = [n for n in ("input", *stage_names, "channel", "detector", "audio") if n in spectra]
+    figures: list[tuple[str, Draw]] = []  # (file name, draw into a file), in the order written
+    data: dict[str, Any] = {}  # figure file name -> (JSON file name, the data behind that figure)
     for i, name in enumerate(order):
         spec = spectra[name]
-        path = plots.plot_stage_spectrum(
-            spec, target(f"{i + 1}_{name}.{fmt}"), title=f"{title}\n{_stage_title(receiver, name)}",
-            filter_overlay=extras["overlays"].get(name), channel_band=extras["bands"].get(name), fmt=fmt,
-        )
-        written.append(out_dir / f"{i + 1}_{name}.{fmt}")
-        plots.save_plot_data(spec, target(f"{i + 1}_{name}.json"))
-        written.append(out_dir / f"{i + 1}_{name}.json")
-        del path
-    plots.plot_overview(
-        [spectra[n] for n in order], target(f"overview.{fmt}"), title=title,
+        figures.append((f"{i + 1}_{name}.{fmt}", partial(
+            plots.plot_stage_spectrum, spec, title=f"{title}\n{_stage_title(receiver, name)}",
+            filter_overlay=extras["overlays"].get(name), channel_band=extras["bands"].get(name), fmt=fmt)))
+        data[f"{i + 1}_{name}.{fmt}"] = (f"{i + 1}_{name}.json", spec)
+    figures.append((f"overview.{fmt}", partial(
+        plots.plot_overview, [spectra[n] for n in order], title=title,
         overlays=[extras["overlays"].get(n) for n in order],
-        channel_band=[extras["bands"].get(n) for n in order], fmt=fmt,
-    )
-    written.append(out_dir / f"overview.{fmt}")
-    grams = receiver.spectrogram_results()
+        channel_band=[extras["bands"].get(n) for n in order], fmt=fmt)))
     labels = {"channel": "channel baseband (after the channel filter)", "audio": "audio"}
-    for name, gram in grams.items():
+    for name, gram in receiver.spectrogram_results().items():
         times, freqs, power, units = gram
         stem = f"spectrogram_{name}"
-        plots.plot_spectrogram(times, freqs, power, target(f"{stem}.{fmt}"), title=f"{title}\n{labels[name]}",
-                               fmt=fmt, units=units)
-        written.append(out_dir / f"{stem}.{fmt}")
+        figures.append((f"{stem}.{fmt}", partial(plots.plot_spectrogram, times, freqs, power,
+                                                 title=f"{title}\n{labels[name]}", fmt=fmt, units=units)))
         # levels to 0.1 dB (far finer than a plot shows) keep the file small
-        plots.save_plot_data({"times_s": np.round(np.asarray(times), 4), "freqs_hz": np.round(np.asarray(freqs), 3),
-                              "power_db": np.round(np.asarray(power), 1), "units": units}, target(f"{stem}.json"))
-        written.append(out_dir / f"{stem}.json")
+        data[f"{stem}.{fmt}"] = (f"{stem}.json", {
+            "times_s": np.round(np.asarray(times), 4), "freqs_hz": np.round(np.asarray(freqs), 3),
+            "power_db": np.round(np.asarray(power), 1), "units": units})
     if audio is not None and audio.size:
-        plots.plot_waveform(audio, receiver.audio_rate_hz, target(f"waveform.{fmt}"), title=f"{title}\naudio", fmt=fmt)
-        written.append(out_dir / f"waveform.{fmt}")
-    return written
+        figures.append((f"waveform.{fmt}", partial(plots.plot_waveform, audio, receiver.audio_rate_hz,
+                                                   title=f"{title}\naudio", fmt=fmt)))
+    names = [n for fig, _ in figures for n in (fig, *([data[fig][0]] if fig in data else []))]
+    paths = {n: target(n) for n in names}  # every file claimed before the drawing starts
+    # the child process draws the biggest figures while this one draws the rest
+    plots.load_matplotlib()  # imported once, before the fork
+    drawn = draw_figures(figures,
+                         child_share=[f"overview.{fmt}", f"waveform.{fmt}", f"spectrogram_audio.{fmt}"])
+    for name, _ in figures:
+        write_atomically(paths[name], partial(_write_bytes, drawn[name]), binary=True, force=True)
+        if name in data:
+            json_name, values = data[name]
+            save_plot_data(values, paths[json_name])
+    return [out_dir / n for n in names]
+
+
+def _write_bytes(content: bytes, fh: Any) -> None:
+    fh.write(content)
 
 
 def _around_channel(spectrum, receiver):
