@@ -82,7 +82,8 @@ def iqsift_run(meta_path: str, offset_hz: float, engine: str, workers: int, bloc
     import iqsift
 
     t0 = time.perf_counter()
-    capture = iqsift.open_capture(meta_path)
+    # the engine alone, as the plain recipe reads the file: no SHA-512 check (the CLI rows include it)
+    capture = iqsift.open_capture(meta_path, verify=False)
     channel = iqsift.make_channel(offset=offset_hz, bandwidth="6k", mode="envelope", audio_rate=AUDIO_RATE)
     rx = iqsift.Receiver.for_capture(capture, channel, engine=engine, workers=workers)
     t1 = time.perf_counter()
