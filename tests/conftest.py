@@ -45,3 +45,13 @@ def run_cli(capsys):
 @pytest.fixture
 def rng():
     return np.random.default_rng(20261202)
+
+
+@pytest.fixture(scope="module")
+def client():
+    """A Dask cluster of two worker processes, one thread each, on 127.0.0.1 only, for one test module
+    (started here, closed when the module's tests are done; the unit states travel between them pickled)."""
+    import distributed  # here: only the batch tests pay for importing Dask
+    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
+                                  dashboard_address=None) as cluster, distributed.Client(cluster) as c:
+        yield c

@@ -23,7 +23,6 @@ import time
 import warnings
 from pathlib import Path
 
-import distributed
 import jsonschema
 import numpy as np
 import pytest
@@ -76,13 +75,6 @@ def reference(captures, tmp_path_factory):
             extract_file(capture, plan or captures / "vhf.toml", out / Path(capture).name.split(".")[0])
     return out
 
-
-@pytest.fixture(scope="module")
-def client():
-    """A local cluster of two worker processes, one thread each, shared by the tests of this module."""
-    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
-                                  dashboard_address=None) as cluster, distributed.Client(cluster) as c:
-        yield c
 
 
 def comparable(value):

@@ -15,7 +15,6 @@ import shutil
 import warnings
 from pathlib import Path
 
-import distributed
 import jsonschema
 import numpy as np
 import pytest
@@ -59,13 +58,6 @@ def reference(inputs, tmp_path_factory):
                          annotate=capture.with_name(f"{stem}.extract.sigmf-meta"))
     return out
 
-
-@pytest.fixture(scope="module")
-def client():
-    """A local cluster of two worker processes, one thread each, for this module's tests."""
-    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
-                                  dashboard_address=None) as cluster, distributed.Client(cluster) as c:
-        yield c
 
 
 @pytest.fixture(scope="module")

@@ -15,7 +15,6 @@ import shutil
 import warnings
 from pathlib import Path
 
-import distributed
 import jsonschema
 import numpy as np
 import pytest
@@ -144,13 +143,6 @@ def test_a_retried_step_starts_from_its_input_state(plans, tmp_path):
     assert (tmp_path / "channel-0.f32").read_bytes() == audio  # rewritten, not appended twice
     assert first.written == second.written and first.written[0] > 0 and state.next_block == 0
 
-
-@pytest.fixture(scope="module")
-def client():
-    """Two worker processes, one thread each (the unit states travel between them pickled)."""
-    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
-                                  dashboard_address=None) as cluster, distributed.Client(cluster) as c:
-        yield c
 
 
 def test_split_batch_on_two_workers_equals_whole_extract(client, plans, reference, tmp_path):
