@@ -76,7 +76,6 @@ def reference(captures, tmp_path_factory):
     return out
 
 
-
 def comparable(value):
     """A report without its timings, every path reduced to its file name."""
     if isinstance(value, dict):

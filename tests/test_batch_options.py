@@ -59,7 +59,6 @@ def reference(inputs, tmp_path_factory):
     return out
 
 
-
 @pytest.fixture(scope="module")
 def batch(inputs, client, tmp_path_factory):
     """The captures through `batch --iq-correct --html --annotate` on the cluster."""

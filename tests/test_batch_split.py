@@ -144,7 +144,6 @@ def test_a_retried_step_starts_from_its_input_state(plans, tmp_path):
     assert first.written == second.written and first.written[0] > 0 and state.next_block == 0
 
 
-
 def test_split_batch_on_two_workers_equals_whole_extract(client, plans, reference, tmp_path):
     out = tmp_path / "batch"
     ticks: list[tuple[int, int]] = []
