@@ -56,9 +56,9 @@ def polyphase_upfirdn(h: np.ndarray, buf: np.ndarray, up: int, down: int, first:
     * ``up == 1`` (decimation): the input, read as rows of ``down`` samples,
       times the reversed taps cut into rows of ``down`` is one matrix product;
       output ``r`` sums ``Q = ceil(N/down)`` entries along a diagonal of it;
-    * ``up > 1``: for each of the ``ceil(N/up)`` taps of a polyphase branch one
-      gather-multiply-add over every output (the branch of output ``m`` is
-      ``(m·down) mod up``).
+    * ``up > 1``: the outputs ``m ≡ c (mod up/g)``, g = gcd(up, down), share a
+      branch (``(m·down) mod up``) and step through the input by ``down/g``: for
+      each such class, one strided multiply-add per tap of its branch.
 
     Rows of a 2-D ``buf`` are independent channels. Output dtype ``result_type(h, buf)``.
     """
@@ -85,8 +85,18 @@ def polyphase_upfirdn(h: np.ndarray, buf: np.ndarray, up: int, down: int, first:
         xp = np.pad(xp, widths)
     idx = i_max + pad_front
     y = np.zeros(lead + (count,), rt)
-    for j in range(branch_len):
-        y += hp[k0 + j * up] * xp[..., idx - j]
+    # outputs u ≡ c (mod period) share their branch k0 and step through the input by down/gcd: each
+    # class is a strided slice times one tap per branch tap (no gathers), summed in the same order
+    period = up // math.gcd(up, down)
+    stride = down // math.gcd(up, down)
+    for c in range(min(period, count)):
+        n_c = len(range(c, count, period))
+        newest, branch = int(idx[c]), int(k0[c])
+        acc = np.zeros(lead + (n_c,), rt)
+        for j in range(branch_len):
+            first_in = newest - j
+            acc += hp[branch + j * up] * xp[..., first_in : first_in + stride * (n_c - 1) + 1 : stride]
+        y[..., c::period] = acc
     return y
 
 
