@@ -55,3 +55,18 @@ def client():
     with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
                                   dashboard_address=None) as cluster, distributed.Client(cluster) as c:
         yield c
+
+
+# the keys of a report that are timings of the run (equal runs differ only in these)
+TIMINGS = {"processing_s", "elapsed_s", "input_throughput_msps"}
+
+
+def comparable(value):
+    """A report without its timings, every path reduced to its file name."""
+    if isinstance(value, dict):
+        return {k: comparable(v) for k, v in value.items() if k not in TIMINGS}
+    if isinstance(value, list):
+        return [comparable(v) for v in value]
+    if isinstance(value, str) and os.sep in value:
+        return os.path.basename(value)
+    return value

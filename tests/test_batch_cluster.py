@@ -33,8 +33,9 @@ from iqsift.jobs import batch_files, extract_file
 from iqsift.jobs.batch import read_manifest
 from iqsift.schemas import load_schema
 
+from .conftest import comparable
+
 SAMPLES = Path(__file__).resolve().parents[1] / "sample_captures"
-TIMINGS = {"processing_s", "elapsed_s", "input_throughput_msps"}
 VHF_PLAN = "".join(f'[[channel]]\nname = "{n}"\nchannel_name = "{c}"\nemission = "6K00A3E"\n\n'
                    for n, c in (("north-ground", "124.030"), ("weak", "124.035"), ("apron", "124.090")))
 HF_PLAN = ('[[channel]]\nname = "lsb"\nfreq = "7.127978M"\nemission = "2K70J3E"\nmode = "lsb"\n\n'
@@ -74,17 +75,6 @@ def reference(captures, tmp_path_factory):
         for capture, plan in read_manifest(captures / "list.txt"):
             extract_file(capture, plan or captures / "vhf.toml", out / Path(capture).name.split(".")[0])
     return out
-
-
-def comparable(value):
-    """A report without its timings, every path reduced to its file name."""
-    if isinstance(value, dict):
-        return {k: comparable(v) for k, v in value.items() if k not in TIMINGS}
-    if isinstance(value, list):
-        return [comparable(v) for v in value]
-    if isinstance(value, str) and os.sep in value:
-        return os.path.basename(value)
-    return value
 
 
 def assert_same_as_reference(folder: Path, reference: Path) -> None:

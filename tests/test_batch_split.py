@@ -28,10 +28,11 @@ from iqsift.jobs import split as split_job
 from iqsift.plan import load_plan
 from iqsift.schemas import load_schema
 
+from .conftest import TIMINGS
+
 SAMPLES = Path(__file__).resolve().parents[1] / "sample_captures"
 VHF = SAMPLES / "vhf_airband.sigmf-meta"
 HF = SAMPLES / "hf_segment.sigmf-meta"
-TIMINGS = {"processing_s", "elapsed_s", "input_throughput_msps"}
 VHF_PLAN = "".join(f'[[channel]]\nname = "{n}"\nchannel_name = "{c}"\nemission = "6K00A3E"\n\n'
                    for n, c in (("north-ground", "124.030"), ("weak", "124.035"), ("apron", "124.090")))
 # three back-end units: an SSB channel, an envelope AM channel and a coherent one with a squelch
