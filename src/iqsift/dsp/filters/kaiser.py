@@ -26,18 +26,72 @@ from typing import Sequence
 import numpy as np
 import scipy.fft as sfft
 
+from ... import checks
 from ...errors import ParameterError
 
-__all__ = ["kaiser_order", "kaiser_fir", "frequency_response"]
+__all__ = ["kaiser_beta", "kaiser_length", "kaiser_order", "kaiser_fir", "frequency_response"]
 
 
-def _beta(atten_db: float) -> float:
-    # Kaiser 1974; Oppenheim & Schafer eq. 7.62 (the same branches as scipy.signal.kaiser_beta)
-    if atten_db > 50.0:
-        return 0.1102 * (atten_db - 8.7)
-    if atten_db > 21.0:
-        return 0.5842 * (atten_db - 21.0) ** 0.4 + 0.07886 * (atten_db - 21.0)
+def kaiser_beta(atten_db: float) -> float:
+    """Kaiser window shape parameter for a stopband attenuation (Kaiser 1974).
+
+    ``beta = 0.1102 (A - 8.7)`` for A > 50; ``0.5842 (A - 21)**0.4 + 0.07886 (A - 21)``
+    for 21 <= A <= 50; 0 below 21 (Oppenheim & Schafer eq. 7.62).
+
+    Parameters
+    ----------
+    atten_db : float
+        Attenuation A in dB (``-20*log10(delta)``).
+
+    Returns
+    -------
+    float
+        The window parameter beta (dimensionless).
+    """
+    a = float(atten_db)
+    if not math.isfinite(a):
+        raise ParameterError(f"atten_db: must be finite, got {atten_db!r}")
+    if a > 50:
+        return 0.1102 * (a - 8.7)
+    if a >= 21:
+        return 0.5842 * (a - 21) ** 0.4 + 0.07886 * (a - 21)
     return 0.0
+
+
+def kaiser_length(atten_db: float, transition_hz: float, rate_hz: float) -> int:
+    """Number of taps from Kaiser's formula (Kaiser 1974; Oppenheim & Schafer eq. 7.63).
+
+    ``N - 1 = (A - 7.95) / (2.285 * dw)`` with ``dw = 2*pi*transition_hz/rate_hz``
+    (rad/sample); returns ``ceil`` of N. This is what ``scipy.signal.kaiserord``
+    computes, with ``width = transition_hz / (rate_hz/2)``.
+
+    Parameters
+    ----------
+    atten_db : float
+        Attenuation A (dB); the formula needs A >= 8.
+    transition_hz : float
+        Transition width ``stopband - passband`` (Hz).
+    rate_hz : float
+        Sample rate (samples/s).
+
+    Returns
+    -------
+    int
+        Filter length in taps (not forced odd; :func:`design_lowpass` rounds up to odd).
+    """
+    a = float(atten_db)
+    if not math.isfinite(a) or a < 8:
+        raise ParameterError(f"atten_db: Kaiser's length formula needs A >= 8 dB, got {atten_db!r}")
+    rate = checks.positive("rate_hz", rate_hz)
+    width = checks.positive("transition_hz", transition_hz)
+    if width > rate / 2:
+        raise ParameterError(
+            f"transition_hz: must be <= rate_hz/2 ({rate / 2:g} Hz), got {transition_hz!r}"
+        )
+    # Same operation order as scipy.signal.kaiserord, so ceil() agrees at the boundaries:
+    # dw = pi * (width in units of the Nyquist frequency).
+    width_nyq = width / (rate / 2.0)
+    return int(math.ceil((a - 7.95) / 2.285 / (math.pi * width_nyq) + 1.0))
 
 
 def kaiser_order(atten_db: float, width_nyquist: float) -> tuple[int, float]:
@@ -60,12 +114,8 @@ def kaiser_order(atten_db: float, width_nyquist: float) -> tuple[int, float]:
         Number of taps N and the window parameter β.
     """
     a = abs(float(atten_db))
-    if not a >= 8.0:
-        raise ParameterError(f"atten_db: Kaiser's formula needs at least 8 dB, got {atten_db!r}")
-    if not width_nyquist > 0.0:
-        raise ParameterError(f"width_nyquist: must be > 0, got {width_nyquist!r}")
-    numtaps = (a - 7.95) / 2.285 / (math.pi * width_nyquist) + 1
-    return int(math.ceil(numtaps)), _beta(a)
+    # a transition of width·(rate/2) Hz at a rate of 2 Hz: the width itself, in units of Nyquist
+    return kaiser_length(a, width_nyquist, 2.0), kaiser_beta(a)
 
 
 def kaiser_fir(numtaps: int, cutoff_hz: float | Sequence[float], beta: float, rate_hz: float,

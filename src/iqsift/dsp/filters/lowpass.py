@@ -49,6 +49,7 @@ from scipy import fft as sp_fft
 
 from ... import checks
 from ...errors import ParameterError
+from .kaiser import kaiser_beta, kaiser_fir, kaiser_length
 
 __all__ = [
     "FilterTooLongError",
@@ -155,68 +156,6 @@ def passband_deviation(ripple_db: float) -> float:
 def stopband_deviation(atten_db: float) -> float:
     """Stopband deviation ``ds = 10**(-atten_db/20)`` (80 dB gives 1e-4)."""
     return 10.0 ** (-float(atten_db) / 20.0)
-
-
-def kaiser_beta(atten_db: float) -> float:
-    """Kaiser window shape parameter for a stopband attenuation (Kaiser 1974).
-
-    ``beta = 0.1102 (A - 8.7)`` for A > 50; ``0.5842 (A - 21)**0.4 + 0.07886 (A - 21)``
-    for 21 <= A <= 50; 0 below 21 (Oppenheim & Schafer eq. 7.62).
-
-    Parameters
-    ----------
-    atten_db : float
-        Attenuation A in dB (``-20*log10(delta)``).
-
-    Returns
-    -------
-    float
-        The window parameter beta (dimensionless).
-    """
-    a = float(atten_db)
-    if not math.isfinite(a):
-        raise ParameterError(f"atten_db: must be finite, got {atten_db!r}")
-    if a > 50:
-        return 0.1102 * (a - 8.7)
-    if a >= 21:
-        return 0.5842 * (a - 21) ** 0.4 + 0.07886 * (a - 21)
-    return 0.0
-
-
-def kaiser_length(atten_db: float, transition_hz: float, rate_hz: float) -> int:
-    """Number of taps from Kaiser's formula (Kaiser 1974; Oppenheim & Schafer eq. 7.63).
-
-    ``N - 1 = (A - 7.95) / (2.285 * dw)`` with ``dw = 2*pi*transition_hz/rate_hz``
-    (rad/sample); returns ``ceil`` of N. This is what ``scipy.signal.kaiserord``
-    computes, with ``width = transition_hz / (rate_hz/2)``.
-
-    Parameters
-    ----------
-    atten_db : float
-        Attenuation A (dB); the formula needs A >= 8.
-    transition_hz : float
-        Transition width ``stopband - passband`` (Hz).
-    rate_hz : float
-        Sample rate (samples/s).
-
-    Returns
-    -------
-    int
-        Filter length in taps (not forced odd; :func:`design_lowpass` rounds up to odd).
-    """
-    a = float(atten_db)
-    if not math.isfinite(a) or a < 8:
-        raise ParameterError(f"atten_db: Kaiser's length formula needs A >= 8 dB, got {atten_db!r}")
-    rate = checks.positive("rate_hz", rate_hz)
-    width = checks.positive("transition_hz", transition_hz)
-    if width > rate / 2:
-        raise ParameterError(
-            f"transition_hz: must be <= rate_hz/2 ({rate / 2:g} Hz), got {transition_hz!r}"
-        )
-    # Same operation order as scipy.signal.kaiserord, so ceil() agrees at the boundaries:
-    # dw = pi * (width in units of the Nyquist frequency).
-    width_nyq = width / (rate / 2.0)
-    return int(math.ceil((a - 7.95) / 2.285 / (math.pi * width_nyq) + 1.0))
 
 
 def harris_length(atten_db: float, transition_hz: float, rate_hz: float) -> int:
@@ -451,14 +390,6 @@ def filter_summary(lp: LowpassDesign) -> dict[str, Any]:
     }
 
 
-def _kaiser_taps(num_taps: int, cutoff_hz: float, rate_hz: float, beta: float) -> np.ndarray:
-    """Windowed ideal low-pass ``(wc/pi) sinc(wc n/pi)`` times a Kaiser window, unity DC gain."""
-    n = np.arange(num_taps, dtype=np.float64) - (num_taps - 1) / 2.0
-    fc = 2.0 * cutoff_hz / rate_hz  # wc/pi
-    h = fc * np.sinc(fc * n) * np.kaiser(num_taps, beta)
-    return h / h.sum()
-
-
 def _finish(taps: np.ndarray, **kwargs: Any) -> LowpassDesign:
     taps = np.ascontiguousarray(taps, dtype=np.float64)
     taps.flags.writeable = False
@@ -475,7 +406,7 @@ def _design_kaiser(rate: float, fp: float, fs: float, ripple: float, atten: floa
     for _ in range(60):
         if n > MAX_TAPS:
             break
-        taps = _kaiser_taps(n, cutoff, rate, beta)
+        taps = kaiser_fir(n, cutoff, beta, rate)
         r, a = measure_lowpass(taps, rate, fp, fs)
         if r <= ripple and a >= atten:
             return _finish(
