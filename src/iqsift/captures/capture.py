@@ -21,7 +21,7 @@ from ..errors import CaptureError, ParameterError
 from ..reference import check_ppm, reference_factor
 from ..units import TimeSpec, parse_time
 from .binary import BinarySource
-from .integrity import ChecksumPass
+from .integrity import ChecksumPass, RecordedChecksum
 from .prefetch import prefetched, reader_thread_enabled
 
 __all__ = ["Capture", "Segment", "Annotation", "SampleRange", "DEFAULT_BLOCK_SIZE"]
@@ -283,8 +283,9 @@ class Capture:
         check started ahead is stopped by :meth:`close` if no pass took it.
         """
         count = self.samples - start if count is None else count
-        if self._check_started is None:
-            self._check_started = self._checksum_pass(start, count, ahead=False)
+        recorded = self._recorded_checksum(start, count)
+        if self._check_started is None and recorded is not None:
+            self._check_started = recorded.start()
 
     def stop_check_ahead(self) -> None:
         """Stop a check started by :meth:`check_ahead` that no pass has taken over (else nothing)."""
@@ -436,21 +437,25 @@ class Capture:
             if checksum is not None:
                 checksum.close()
 
-    def _checksum_pass(self, start: int, count: int, ahead: bool = True) -> ChecksumPass | None:
-        """The check of a pass (the one started by :meth:`check_ahead` when ``ahead``, else a new one
-        started now on its own thread), or None when this pass is not checked.
-
-        Only a pass over the whole capture is checked: a part of the data says nothing about
-        the checksum of the whole.
-        """
+    def _recorded_checksum(self, start: int, count: int) -> RecordedChecksum | None:
+        """The checksum a pass over ``[start, start + count)`` is checked against, or None: only a pass
+        over the whole capture is checked (a part of the data says nothing about the checksum of the
+        whole), and only with :attr:`verify` set and a checksum recorded."""
         source = self._source
-        if (self.verify and isinstance(source, BinarySource) and source.checksum is not None
-                and start == 0 and count == self.samples):
-            if ahead and self._check_started is not None:
-                started, self._check_started = self._check_started, None
-                return started
-            return source.checksum.start()
+        if self.verify and isinstance(source, BinarySource) and start == 0 and count == self.samples:
+            return source.checksum
         return None
+
+    def _checksum_pass(self, start: int, count: int) -> ChecksumPass | None:
+        """The check of a pass: the one :meth:`check_ahead` started, else a new one started now on its
+        own thread; None when this pass is not checked."""
+        recorded = self._recorded_checksum(start, count)
+        if recorded is None:
+            return None
+        if self._check_started is not None:
+            started, self._check_started = self._check_started, None
+            return started
+        return recorded.start()
 
     def _read_blocks(self, read: Callable[[int, int], np.ndarray], block_size: int, start: int, count: int,
                      nonfinite: str, check: bool) -> Iterator[np.ndarray]:
